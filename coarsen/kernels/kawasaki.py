@@ -1,0 +1,211 @@
+"""Kawasaki spin-exchange dynamics (conserved magnetization), random-sequential.
+
+Local exchange: attempt k of a sweep (N attempts) consumes ``d + 2`` consecutive 32-bit words
+of the replica's stream: one per coordinate of site a (x first), one choosing the bond
+direction ``j`` in ``[0, z)`` (the neighbour b = a + ``offsets[j]``) and the acceptance word
+``w``. Equal spins, or a neighbour across an open edge, leave the attempt without effect.
+
+Nonlocal exchange: attempt k consumes 3 words: the index of an up spin in the list of up
+spins, the index of a down spin in the list of down spins, and ``w``. The lists are rebuilt
+in site order at the start of every call and updated by swapping entries on every exchange.
+
+Both exchange the two spins when ``w >> 1 <= exchange_limits[t, q + 2 z]`` with
+``q = s_a (f_a - f_b) + 2 [a, b adjacent]``, f the neighbour sums before the move; the energy
+change is ``2 J q`` (the field h cancels because one up and one down spin swap).
+Leftover words are discarded at the end of every sweep, as in the Glauber kernel.
+"""
+
+import numpy as np
+from numba import prange
+
+from coarsen.kernels._options import jit_inline, jit_parallel
+from coarsen.kernels.geometry import local_field, neighbour_index, prefetch_site
+from coarsen.kernels.random_words import LANES, fill_draws, scale_word
+
+__all__: list[str] = []
+
+ATTEMPTS_PER_BLOCK = 256
+PREFETCH_DISTANCE = 12
+PREFETCH_MIN_SITES = 1 << 20
+
+
+@jit_inline
+def _coordinates(site, nx, ny):
+    x = site % nx
+    rest = site // nx
+    return x, rest % ny, rest // ny
+
+
+@jit_inline
+def _local_sweep(spins, state, limits, offsets, dims, kind, periodic, buffer, xs, ys, zs):
+    nx = dims[0]
+    ny = dims[1]
+    nz = dims[2]
+    n_sites = nx * ny * nz
+    d = 1 if kind == 0 else (3 if kind == 3 else 2)
+    n_dir = offsets.shape[0]
+    shift = 2 * n_dir
+    per = d + 2
+    use_prefetch = n_sites >= PREFETCH_MIN_SITES
+    words = buffer.view(np.uint32)
+    moves = 0
+    remaining = n_sites
+    while remaining > 0:
+        count = min(ATTEMPTS_PER_BLOCK, remaining)
+        blocks = (count * per + 2 * LANES - 1) // (2 * LANES)
+        fill_draws(state, buffer, blocks)
+        for k in range(count):
+            base = k * per
+            xs[k] = scale_word(words[base], nx)
+            ys[k] = scale_word(words[base + 1], ny) if d > 1 else 0
+            zs[k] = scale_word(words[base + 2], nz) if d > 2 else 0
+        for k in range(count):
+            if use_prefetch and k + PREFETCH_DISTANCE < count:
+                j = k + PREFETCH_DISTANCE
+                prefetch_site(spins, xs[j], ys[j], zs[j], nx, ny, nz, kind)
+            x = xs[k]
+            y = ys[k]
+            z = zs[k]
+            base = k * per
+            direction = scale_word(words[base + d], n_dir)
+            a = (z * ny + y) * nx + x
+            b = neighbour_index(x, y, z, offsets[direction, 0], offsets[direction, 1],
+                                offsets[direction, 2], nx, ny, nz, periodic)
+            if b < 0:
+                continue
+            sa = spins[np.uint64(a)]
+            sb = spins[np.uint64(b)]
+            if sa == sb:
+                continue
+            xb, yb, zb = _coordinates(b, nx, ny)
+            fa = local_field(spins, x, y, z, nx, ny, nz, kind, periodic)
+            fb = local_field(spins, xb, yb, zb, nx, ny, nz, kind, periodic)
+            q = sa * (fa - fb) + 2
+            w = np.int64(words[base + d + 1] >> np.uint32(1))
+            if w <= limits[q + shift]:
+                spins[np.uint64(a)] = sb
+                spins[np.uint64(b)] = sa
+                moves += 1
+        remaining -= count
+    return moves
+
+
+@jit_parallel
+def kawasaki_local(spins, states, exchange_limits, offsets, dims, kind, periodic, sweeps, moves):
+    """Advance every replica by ``sweeps`` sweeps of nearest-neighbour exchanges, in place.
+
+    Parameters
+    ----------
+    spins : ndarray of shape (R, N) and dtype int8
+        Flat configurations, modified in place.
+    states : ndarray of shape (R, 4 * LANES) and dtype uint64
+        One stream per replica, advanced in place.
+    exchange_limits : ndarray of shape (n_tables, 4 z + 3) and dtype int32
+        Integer thresholds indexed by ``q + 2 z``; table t is used in sweep t (the last one
+        for later sweeps).
+    offsets : ndarray of shape (z, 3) and dtype int64
+        Neighbour offsets (dx, dy, dz), in the lattice's order.
+    dims, kind, periodic
+        As for the Glauber kernel.
+    sweeps : int
+        Number of sweeps.
+    moves : ndarray of shape (R,) and dtype int64
+        Incremented by the number of exchanges made.
+    """
+    n_rep = spins.shape[0]
+    n_tables = exchange_limits.shape[0]
+    for r in prange(n_rep):
+        buffer = np.empty(ATTEMPTS_PER_BLOCK * 5 // 2 + LANES, dtype=np.uint64)
+        xs = np.empty(ATTEMPTS_PER_BLOCK, dtype=np.int64)
+        ys = np.empty(ATTEMPTS_PER_BLOCK, dtype=np.int64)
+        zs = np.empty(ATTEMPTS_PER_BLOCK, dtype=np.int64)
+        total = 0
+        for t in range(sweeps):
+            table = exchange_limits[min(t, n_tables - 1)]
+            if periodic:
+                if kind == 0:
+                    total += _local_sweep(spins[r], states[r], table, offsets, dims, 0, True, buffer, xs, ys, zs)
+                elif kind == 1:
+                    total += _local_sweep(spins[r], states[r], table, offsets, dims, 1, True, buffer, xs, ys, zs)
+                elif kind == 2:
+                    total += _local_sweep(spins[r], states[r], table, offsets, dims, 2, True, buffer, xs, ys, zs)
+                else:
+                    total += _local_sweep(spins[r], states[r], table, offsets, dims, 3, True, buffer, xs, ys, zs)
+            else:
+                total += _local_sweep(spins[r], states[r], table, offsets, dims, kind, False, buffer, xs, ys, zs)
+        moves[r] += total
+
+
+@jit_inline
+def _adjacent(a, b, offsets, dims, periodic):
+    nx = dims[0]
+    ny = dims[1]
+    nz = dims[2]
+    x, y, z = _coordinates(a, nx, ny)
+    for j in range(offsets.shape[0]):
+        if neighbour_index(x, y, z, offsets[j, 0], offsets[j, 1], offsets[j, 2],
+                           nx, ny, nz, periodic) == b:
+            return True
+    return False
+
+
+@jit_parallel
+def kawasaki_nonlocal(spins, states, exchange_limits, offsets, dims, kind, periodic, sweeps, moves):
+    """Advance every replica by ``sweeps`` sweeps of exchanges between any up and down spin.
+
+    Parameters are those of :func:`kawasaki_local`. A replica with all spins equal is left
+    unchanged (its stream still advances).
+    """
+    n_rep = spins.shape[0]
+    n_tables = exchange_limits.shape[0]
+    nx = dims[0]
+    ny = dims[1]
+    n_sites = spins.shape[1]
+    shift = 2 * offsets.shape[0]
+    for r in prange(n_rep):
+        s = spins[r]
+        state = states[r]
+        buffer = np.empty(ATTEMPTS_PER_BLOCK * 3 // 2 + LANES, dtype=np.uint64)
+        words = buffer.view(np.uint32)
+        ups = np.empty(n_sites, dtype=np.int64)
+        downs = np.empty(n_sites, dtype=np.int64)
+        n_up = 0
+        n_down = 0
+        for i in range(n_sites):
+            if s[i] > 0:
+                ups[n_up] = i
+                n_up += 1
+            else:
+                downs[n_down] = i
+                n_down += 1
+        total = 0
+        for t in range(sweeps):
+            limits = exchange_limits[min(t, n_tables - 1)]
+            remaining = n_sites
+            while remaining > 0:
+                count = min(ATTEMPTS_PER_BLOCK, remaining)
+                blocks = (count * 3 + 2 * LANES - 1) // (2 * LANES)
+                fill_draws(state, buffer, blocks)
+                remaining -= count
+                if n_up == 0 or n_down == 0:
+                    continue
+                for k in range(count):
+                    iu = scale_word(words[3 * k], n_up)
+                    idn = scale_word(words[3 * k + 1], n_down)
+                    a = ups[iu]
+                    b = downs[idn]
+                    xa, ya, za = _coordinates(a, nx, ny)
+                    xb, yb, zb = _coordinates(b, nx, ny)
+                    fa = local_field(s, xa, ya, za, nx, ny, dims[2], kind, periodic)
+                    fb = local_field(s, xb, yb, zb, nx, ny, dims[2], kind, periodic)
+                    q = fa - fb  # s_a = +1
+                    if _adjacent(a, b, offsets, dims, periodic):
+                        q += 2
+                    w = np.int64(words[3 * k + 2] >> np.uint32(1))
+                    if w <= limits[q + shift]:
+                        s[a] = -1
+                        s[b] = 1
+                        ups[iu] = b
+                        downs[idn] = a
+                        total += 1
+        moves[r] += total
