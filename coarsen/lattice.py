@@ -48,9 +48,9 @@ _FORWARD_OFFSETS: dict[str, tuple[tuple[int, ...], ...]] = {
     "cubic": ((1, 0, 0), (0, 1, 0), (0, 0, 1)),
 }
 
-#: Smallest size per axis: a periodic axis shorter than 3 would make a site its own neighbour
-#: twice (size 2) or once (size 1).
-MINIMUM_SIZE = 3
+#: Smallest size per axis. A periodic axis shorter than 3 would make one site a neighbour of
+#: another twice (size 2) or of itself (size 1); an open axis needs 2 sites to have a bond.
+MINIMUM_SIZE = {"periodic": 3, "open": 2}
 
 
 @dataclass(frozen=True)
@@ -76,7 +76,7 @@ class Lattice:
     Raises
     ------
     ValueError
-        For an unknown kind or boundary, a wrong number of sizes, or a size below 3.
+        For an unknown kind or boundary, a wrong number of sizes, or a size below the minimum.
     """
 
     kind: str
@@ -112,10 +112,11 @@ class Lattice:
                 f"lattice size: {list(size)!r} has {len(size)} entries but a {self.kind} lattice "
                 f"has {d} dimension{'s' if d > 1 else ''}; give one size per axis"
             )
-        if min(size) < MINIMUM_SIZE:
+        smallest = MINIMUM_SIZE[self.boundary]
+        if min(size) < smallest:
             raise ValueError(
-                f"lattice size: {list(size)!r} is too small; every axis needs at least "
-                f"{MINIMUM_SIZE} sites"
+                f"lattice size: {list(size)!r} is too small; every axis of a {self.boundary} "
+                f"lattice needs at least {smallest} sites"
             )
         object.__setattr__(self, "size", size)
 
