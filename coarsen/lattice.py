@@ -63,7 +63,7 @@ class Lattice:
         The lattice kind.
     size : tuple of int, or int
         Sites per axis in (x, y, z) order, one entry per dimension (an int means the same size
-        on every axis). Every entry must be at least 3.
+        on every axis). Every entry must be at least 3 (periodic) or 2 (open).
     boundary : {"periodic", "open"}, default: "periodic"
         Periodic boundaries wrap every axis; open boundaries drop the bonds across the edges.
 
