@@ -2,11 +2,24 @@
 
 ``fastmath`` stays off everywhere: acceptance decisions compare integers, and the few
 floating-point reductions are done outside the kernels in a fixed order.
+
+Cache location: unless ``NUMBA_CACHE_DIR`` is set, the decorators below are created after
+``numba.config.CACHE_DIR`` points at :func:`coarsen._cache_dir.numba_cache_dir`, a directory
+named after a hash of all kernel sources (see :mod:`coarsen._cache_dir` for why).
 """
+
+import os
 
 import numba
 
+from coarsen._cache_dir import numba_cache_dir
+
 __all__ = ["jit_serial", "jit_parallel", "jit_inline"]
+
+if not os.environ.get("NUMBA_CACHE_DIR"):
+    _directory = numba_cache_dir()
+    if _directory is not None:
+        numba.config.CACHE_DIR = _directory
 
 #: Options of a serial kernel.
 SERIAL = {"nogil": True, "cache": True, "fastmath": False, "boundscheck": False}

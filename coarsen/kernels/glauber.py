@@ -103,13 +103,18 @@ def glauber_random_sequential(spins, states, up_limits, dims, kind, periodic, sw
             # Literal kind and boundary arguments let the compiler specialise each case.
             if periodic:
                 if kind == 0:
-                    total += _sweep_replica(spins[r], states[r], table, dims, 0, True, buffer, xs, ys, zs)
+                    total += _sweep_replica(spins[r], states[r], table, dims, 0, True, buffer, xs,
+                        ys, zs)
                 elif kind == 1:
-                    total += _sweep_replica(spins[r], states[r], table, dims, 1, True, buffer, xs, ys, zs)
+                    total += _sweep_replica(spins[r], states[r], table, dims, 1, True, buffer, xs,
+                        ys, zs)
                 elif kind == 2:
-                    total += _sweep_replica(spins[r], states[r], table, dims, 2, True, buffer, xs, ys, zs)
+                    total += _sweep_replica(spins[r], states[r], table, dims, 2, True, buffer, xs,
+                        ys, zs)
                 else:
-                    total += _sweep_replica(spins[r], states[r], table, dims, 3, True, buffer, xs, ys, zs)
+                    total += _sweep_replica(spins[r], states[r], table, dims, 3, True, buffer, xs,
+                        ys, zs)
             else:
-                total += _sweep_replica(spins[r], states[r], table, dims, kind, False, buffer, xs, ys, zs)
+                total += _sweep_replica(spins[r], states[r], table, dims, kind, False, buffer, xs,
+                    ys, zs)
         flips[r] += total

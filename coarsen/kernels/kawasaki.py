@@ -37,13 +37,14 @@ def _coordinates(site, nx, ny):
 
 
 @jit_inline
-def _local_sweep(spins, state, limits, offsets, dims, kind, periodic, buffer, xs, ys, zs):
+def _local_sweep(spins, state, limits, step_x, step_y, step_z, dims, kind, periodic, buffer,
+                 xs, ys, zs):
     nx = dims[0]
     ny = dims[1]
     nz = dims[2]
     n_sites = nx * ny * nz
     d = 1 if kind == 0 else (3 if kind == 3 else 2)
-    n_dir = offsets.shape[0]
+    n_dir = step_x.shape[0]
     shift = 2 * n_dir
     per = d + 2
     use_prefetch = n_sites >= PREFETCH_MIN_SITES
@@ -68,24 +69,34 @@ def _local_sweep(spins, state, limits, offsets, dims, kind, periodic, buffer, xs
             z = zs[k]
             base = k * per
             direction = scale_word(words[base + d], n_dir)
+            xb = x + step_x[direction]
+            inside = 0 <= xb < nx
+            xb = xb + nx if xb < 0 else (xb - nx if xb >= nx else xb)
+            yb = y
+            zb = z
+            if d > 1:
+                yb = y + step_y[direction]
+                inside = inside and (0 <= yb < ny)
+                yb = yb + ny if yb < 0 else (yb - ny if yb >= ny else yb)
+            if d > 2:
+                zb = z + step_z[direction]
+                inside = inside and (0 <= zb < nz)
+                zb = zb + nz if zb < 0 else (zb - nz if zb >= nz else zb)
             a = (z * ny + y) * nx + x
-            b = neighbour_index(x, y, z, offsets[direction, 0], offsets[direction, 1],
-                                offsets[direction, 2], nx, ny, nz, periodic)
-            if b < 0:
-                continue
+            b = (zb * ny + yb) * nx + xb
             sa = spins[np.uint64(a)]
             sb = spins[np.uint64(b)]
-            if sa == sb:
+            if sa == sb or not (periodic or inside):
                 continue
-            xb, yb, zb = _coordinates(b, nx, ny)
+            # Select rather than branch: acceptance is unpredictable.
             fa = local_field(spins, x, y, z, nx, ny, nz, kind, periodic)
             fb = local_field(spins, xb, yb, zb, nx, ny, nz, kind, periodic)
             q = sa * (fa - fb) + 2
             w = np.int64(words[base + d + 1] >> np.uint32(1))
-            if w <= limits[q + shift]:
-                spins[np.uint64(a)] = sb
-                spins[np.uint64(b)] = sa
-                moves += 1
+            swap = w <= limits[q + shift]
+            spins[np.uint64(a)] = sb if swap else sa
+            spins[np.uint64(b)] = sa if swap else sb
+            moves += np.int64(swap)
         remaining -= count
     return moves
 
@@ -114,6 +125,9 @@ def kawasaki_local(spins, states, exchange_limits, offsets, dims, kind, periodic
     """
     n_rep = spins.shape[0]
     n_tables = exchange_limits.shape[0]
+    step_x = np.ascontiguousarray(offsets[:, 0])
+    step_y = np.ascontiguousarray(offsets[:, 1])
+    step_z = np.ascontiguousarray(offsets[:, 2])
     for r in prange(n_rep):
         buffer = np.empty(ATTEMPTS_PER_BLOCK * 5 // 2 + LANES, dtype=np.uint64)
         xs = np.empty(ATTEMPTS_PER_BLOCK, dtype=np.int64)
@@ -124,15 +138,20 @@ def kawasaki_local(spins, states, exchange_limits, offsets, dims, kind, periodic
             table = exchange_limits[min(t, n_tables - 1)]
             if periodic:
                 if kind == 0:
-                    total += _local_sweep(spins[r], states[r], table, offsets, dims, 0, True, buffer, xs, ys, zs)
+                    total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
+                        0, True, buffer, xs, ys, zs)
                 elif kind == 1:
-                    total += _local_sweep(spins[r], states[r], table, offsets, dims, 1, True, buffer, xs, ys, zs)
+                    total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
+                        1, True, buffer, xs, ys, zs)
                 elif kind == 2:
-                    total += _local_sweep(spins[r], states[r], table, offsets, dims, 2, True, buffer, xs, ys, zs)
+                    total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
+                        2, True, buffer, xs, ys, zs)
                 else:
-                    total += _local_sweep(spins[r], states[r], table, offsets, dims, 3, True, buffer, xs, ys, zs)
+                    total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
+                        3, True, buffer, xs, ys, zs)
             else:
-                total += _local_sweep(spins[r], states[r], table, offsets, dims, kind, False, buffer, xs, ys, zs)
+                total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
+                    kind, False, buffer, xs, ys, zs)
         moves[r] += total
 
 
