@@ -18,7 +18,7 @@ caller orients the field by the sign of J).
 import numpy as np
 from numba import prange
 
-from coarsen.kernels._options import jit_inline, jit_parallel
+from coarsen.kernels._options import jit_inline, jit_parallel, jit_serial
 from coarsen.kernels.geometry import local_field
 from coarsen.kernels.random_words import LANES, fill_draws
 
@@ -159,28 +159,39 @@ def _row(me, other, row, parity, nbrs, words, tsum, table, plus, minus, fields, 
     return changed
 
 
-@jit_inline
-def _block(halves, states, tables, row_parity, row_neighbours, block_rows, r, b, c, t,
-           periodic, n_thr):
-    me_all = halves[r, c]
-    other = halves[r, 1 - c]
-    h = halves.shape[3]
-    n_blocks = (h + 2 * LANES - 1) // (2 * LANES)
-    buffer = np.empty(n_blocks * LANES, dtype=np.uint64)
-    words = buffer.view(np.uint32)
-    tsum = np.empty(h, dtype=np.int8)
-    plus = np.empty(8, dtype=np.int32)
-    minus = np.empty(8, dtype=np.int32)
-    fields = np.empty(8, dtype=np.int8)
-    table = tables[min(t, tables.shape[0] - 1)]
-    state = states[r, b]
-    changed = 0
-    for row in range(block_rows[b], block_rows[b + 1]):
-        fill_draws(state, buffer, n_blocks)
-        parity = (row_parity[row] + c) & 1
-        changed += _row(me_all[row], other, row, parity, row_neighbours, words, tsum, table,
-                        plus, minus, fields, periodic, n_thr)
-    return changed
+def _make_block(n_thr):
+    """Update one row block of one colour; compiled once per threshold count n_thr (3, 5, 7
+    for chain, square, cubic), a constant the vectorised loop needs at compile time."""
+
+    @jit_serial
+    def block(halves, states, tables, row_parity, row_neighbours, block_rows, r, b, c, t,
+              periodic):
+        me_all = halves[r, c]
+        other = halves[r, 1 - c]
+        h = halves.shape[3]
+        n_blocks = (h + 2 * LANES - 1) // (2 * LANES)
+        buffer = np.empty(n_blocks * LANES, dtype=np.uint64)
+        words = buffer.view(np.uint32)
+        tsum = np.empty(h, dtype=np.int8)
+        plus = np.empty(8, dtype=np.int32)
+        minus = np.empty(8, dtype=np.int32)
+        fields = np.empty(8, dtype=np.int8)
+        table = tables[min(t, tables.shape[0] - 1)]
+        state = states[r, b]
+        changed = 0
+        for row in range(block_rows[b], block_rows[b + 1]):
+            fill_draws(state, buffer, n_blocks)
+            parity = (row_parity[row] + c) & 1
+            changed += _row(me_all[row], other, row, parity, row_neighbours, words, tsum, table,
+                            plus, minus, fields, periodic, n_thr)
+        return changed
+
+    return block
+
+
+_block_3 = _make_block(3)
+_block_5 = _make_block(5)
+_block_7 = _make_block(7)
 
 
 @jit_parallel
@@ -242,14 +253,14 @@ def _colour_step(halves, states, up_limits, row_parity, row_neighbours, block_ro
         b = task % n_sub
         slot = r * n_sub + b
         if n_thr == 3:
-            counts[slot] += _block(halves, states, up_limits, row_parity, row_neighbours,
-                                   block_rows, r, b, c, t, periodic, 3)
+            counts[slot] += _block_3(halves, states, up_limits, row_parity, row_neighbours,
+                                     block_rows, r, b, c, t, periodic)
         elif n_thr == 5:
-            counts[slot] += _block(halves, states, up_limits, row_parity, row_neighbours,
-                                   block_rows, r, b, c, t, periodic, 5)
+            counts[slot] += _block_5(halves, states, up_limits, row_parity, row_neighbours,
+                                     block_rows, r, b, c, t, periodic)
         else:
-            counts[slot] += _block(halves, states, up_limits, row_parity, row_neighbours,
-                                   block_rows, r, b, c, t, periodic, 7)
+            counts[slot] += _block_7(halves, states, up_limits, row_parity, row_neighbours,
+                                     block_rows, r, b, c, t, periodic)
 
 
 @jit_parallel

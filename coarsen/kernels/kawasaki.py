@@ -18,8 +18,8 @@ Leftover words are discarded at the end of every sweep, as in the Glauber kernel
 import numpy as np
 from numba import prange
 
-from coarsen.kernels._options import jit_inline, jit_parallel
-from coarsen.kernels.geometry import local_field, neighbour_index, prefetch_site
+from coarsen.kernels._options import jit_inline, jit_parallel, jit_serial
+from coarsen.kernels.geometry import SQUARE, local_field, neighbour_index, prefetch_site
 from coarsen.kernels.random_words import LANES, fill_draws, scale_word
 
 __all__: list[str] = []
@@ -36,9 +36,25 @@ def _coordinates(site, nx, ny):
     return x, rest % ny, rest // ny
 
 
+def _make_local_sweep(fixed_kind):
+    """One replica's sweep; ``fixed_kind >= 0`` compiles a copy for periodic lattices of that
+    kind, whose constant geometry the compiler folds in."""
+
+    @jit_serial
+    def sweep(spins, state, limits, step_x, step_y, step_z, dims, kind, periodic, buffer, xs,
+              ys, zs):
+        if fixed_kind >= 0:
+            return _local_sweep_body(spins, state, limits, step_x, step_y, step_z, dims,
+                                     fixed_kind, True, buffer, xs, ys, zs)
+        return _local_sweep_body(spins, state, limits, step_x, step_y, step_z, dims, kind,
+                                 periodic, buffer, xs, ys, zs)
+
+    return sweep
+
+
 @jit_inline
-def _local_sweep(spins, state, limits, step_x, step_y, step_z, dims, kind, periodic, buffer,
-                 xs, ys, zs):
+def _local_sweep_body(spins, state, limits, step_x, step_y, step_z, dims, kind, periodic,
+                      buffer, xs, ys, zs):
     nx = dims[0]
     ny = dims[1]
     nz = dims[2]
@@ -101,6 +117,10 @@ def _local_sweep(spins, state, limits, step_x, step_y, step_z, dims, kind, perio
     return moves
 
 
+_local_sweep_square_periodic = _make_local_sweep(SQUARE)
+_local_sweep_any = _make_local_sweep(-1)
+
+
 @jit_parallel
 def kawasaki_local(spins, states, exchange_limits, offsets, dims, kind, periodic, sweeps, moves):
     """Advance every replica by ``sweeps`` sweeps of nearest-neighbour exchanges, in place.
@@ -136,22 +156,13 @@ def kawasaki_local(spins, states, exchange_limits, offsets, dims, kind, periodic
         total = 0
         for t in range(sweeps):
             table = exchange_limits[min(t, n_tables - 1)]
-            if periodic:
-                if kind == 0:
-                    total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
-                        0, True, buffer, xs, ys, zs)
-                elif kind == 1:
-                    total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
-                        1, True, buffer, xs, ys, zs)
-                elif kind == 2:
-                    total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
-                        2, True, buffer, xs, ys, zs)
-                else:
-                    total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
-                        3, True, buffer, xs, ys, zs)
+            if kind == SQUARE and periodic:
+                total += _local_sweep_square_periodic(spins[r], states[r], table, step_x, step_y,
+                                                      step_z, dims, kind, periodic, buffer, xs,
+                                                      ys, zs)
             else:
-                total += _local_sweep(spins[r], states[r], table, step_x, step_y, step_z, dims,
-                    kind, False, buffer, xs, ys, zs)
+                total += _local_sweep_any(spins[r], states[r], table, step_x, step_y, step_z,
+                                          dims, kind, periodic, buffer, xs, ys, zs)
         moves[r] += total
 
 
