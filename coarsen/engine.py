@@ -114,7 +114,12 @@ def _check_spin_values(spins, name="spins") -> None:
 
 
 def _temperatures(temperature, sweeps) -> np.ndarray:
-    t = np.asarray(temperature, dtype=float)
+    try:
+        t = np.asarray(temperature, dtype=float)
+    except (TypeError, ValueError):
+        raise TypeError(f"temperature: {temperature!r} is not a number") from None
+    if temperature is None:
+        raise TypeError("temperature: None is not a number")
     if t.ndim == 0:
         t = t.reshape(1)
     elif t.ndim != 1 or t.shape[0] != sweeps:
@@ -122,7 +127,7 @@ def _temperatures(temperature, sweeps) -> np.ndarray:
             f"temperature: give one value or one per sweep ({sweeps}), got shape {t.shape}"
         )
     if not np.all(np.isfinite(t)) or np.any(t < 0):
-        bad = t[~(np.isfinite(t) & (t >= 0))][0]
+        bad = float(t[~(np.isfinite(t) & (t >= 0))][0])
         raise ValueError(f"temperature: {bad!r} is not a finite temperature >= 0")
     return t
 
@@ -336,7 +341,9 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
     """
     check_dynamics(lattice, rule, acceptance, update)
     _check_spins(spins, lattice)
-    if isinstance(sweeps, bool) or not isinstance(sweeps, (int, np.integer)) or sweeps < 0:
+    if isinstance(sweeps, bool) or not isinstance(sweeps, (int, np.integer)):
+        raise TypeError(f"sweeps: {sweeps!r} is not a whole number >= 0")
+    if sweeps < 0:
         raise ValueError(f"sweeps: {sweeps!r} is not a whole number >= 0")
     sweeps = int(sweeps)
     temps = _temperatures(temperature, sweeps)

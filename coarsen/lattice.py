@@ -114,9 +114,10 @@ class Lattice:
             )
         smallest = MINIMUM_SIZE[self.boundary]
         if min(size) < smallest:
+            article = "an" if self.boundary == "open" else "a"
             raise ValueError(
-                f"lattice size: {list(size)!r} is too small; every axis of a {self.boundary} "
-                f"lattice needs at least {smallest} sites"
+                f"lattice size: {list(size)!r} is too small; every axis of {article} "
+                f"{self.boundary} lattice needs at least {smallest} sites"
             )
         object.__setattr__(self, "size", size)
 
@@ -197,8 +198,8 @@ class Lattice:
             )
         if self.size[0] % 3 and k == 3:
             return (
-                f"lattice size: {list(self.size)!r}: sublattice updates of the triangular lattice "
-                f"need the x size {self.size[0]} divisible by 3"
+                f"lattice size: {list(self.size)!r}: sublattice (checkerboard) updates of the "
+                f"triangular lattice need the x size {self.size[0]} divisible by 3"
             )
         return None
 
@@ -210,10 +211,9 @@ class Lattice:
         triangular lattice (its six neighbour offsets all change ``x + y`` by 1 or 2 mod 3).
         """
         grids = np.indices(self.shape)  # (z, y, x) order
-        total = grids.sum(axis=0)
-        colours = total % self.n_colours
+        colours = (grids.sum(axis=0) % self.n_colours).astype(np.int8)
         colours.setflags(write=False)
-        return colours.astype(np.int8)
+        return colours
 
     @cached_property
     def staggering(self) -> np.ndarray:
@@ -229,7 +229,9 @@ class Lattice:
                 f"order: 'neel' needs a bipartite lattice, but a {self.boundary} {self.kind} "
                 f"lattice of size {list(self.size)!r} is not bipartite"
             )
-        return (1 - 2 * (self.sublattice & 1)).astype(np.int8)
+        signs = (1 - 2 * (self.sublattice & 1)).astype(np.int8)
+        signs.setflags(write=False)
+        return signs
 
     # --- neighbours -----------------------------------------------------------------------
     def flat_index(self, coords: np.ndarray) -> np.ndarray:

@@ -9,10 +9,8 @@ for its m-th site. Results therefore depend on the block layout, never on the th
 Bipartite lattices (chain, square, cubic) use the colour-split layout: ``halves[r, c, row, m]``
 is the spin at ``x = 2 m + ((row_parity[row] + c) & 1)`` of that row, so a colour's sites in a
 row are contiguous and the update loop vectorises. The decision "new spin up" is the test
-``w >> 1 <= limit[f]`` of the other kernels, written branch-free: with the thresholds of the
-field values that occur in the row sorted ascending, the count c of thresholds below
-``w >> 1`` is compared with the field (the thresholds are monotone in the field, since the
-caller orients the field by the sign of J).
+``w >> 1 <= limit[old, f]`` of the other kernels, written without a table lookup: for the few
+field values f_j that occur in a row, ``OR_j (f == f_j AND w >> 1 <= limit[old, f_j])``.
 """
 
 import numpy as np

@@ -5,7 +5,7 @@ the replica's stream (d = dimension): one per coordinate, x first, each mapped t
 ``[0, n_axis)`` by multiply-shift, then the acceptance word ``w``. The new spin is +1 when
 ``w >> 1 <= up_limits[t, (s + 1) // 2, field + z]`` and -1 otherwise, where ``s`` is the old
 spin and ``field`` the sum of the neighbour spins; the table holds ``floor(p * 2**31) - 1``
-for the probability ``p`` that the new spin is up (``coarsen.engine.up_limits``). Words are
+for the probability ``p`` that the new spin is up (``coarsen.engine.up_probabilities``). Words are
 drawn in blocks of 256 attempts; the words left over at the end of a sweep are discarded, so
 a run split into calls of any length consumes the same numbers.
 """

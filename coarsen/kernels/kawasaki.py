@@ -7,7 +7,7 @@ direction ``j`` in ``[0, z)`` (the neighbour b = a + ``offsets[j]``) and the acc
 
 Nonlocal exchange: attempt k consumes 3 words: the index of an up spin in the list of up
 spins, the index of a down spin in the list of down spins, and ``w``. The lists are rebuilt
-in site order at the start of every call and updated by swapping entries on every exchange.
+in site order at the start of every sweep and updated by swapping entries on every exchange.
 
 Both exchange the two spins when ``w >> 1 <= exchange_limits[t, q + 2 z]`` with
 ``q = s_a (f_a - f_b) + 2 [a, b adjacent]``, f the neighbour sums before the move; the energy
@@ -199,18 +199,20 @@ def kawasaki_nonlocal(spins, states, exchange_limits, offsets, dims, kind, perio
         words = buffer.view(np.uint32)
         ups = np.empty(n_sites, dtype=np.int64)
         downs = np.empty(n_sites, dtype=np.int64)
-        n_up = 0
-        n_down = 0
-        for i in range(n_sites):
-            if s[i] > 0:
-                ups[n_up] = i
-                n_up += 1
-            else:
-                downs[n_down] = i
-                n_down += 1
         total = 0
         for t in range(sweeps):
             limits = exchange_limits[min(t, n_tables - 1)]
+            # Lists in site order at every sweep, so that the result does not depend on how a
+            # run is split into calls (a checkpoint holds no list order).
+            n_up = 0
+            n_down = 0
+            for i in range(n_sites):
+                if s[i] > 0:
+                    ups[n_up] = i
+                    n_up += 1
+                else:
+                    downs[n_down] = i
+                    n_down += 1
             remaining = n_sites
             while remaining > 0:
                 count = min(ATTEMPTS_PER_BLOCK, remaining)
