@@ -22,8 +22,6 @@ from coarsen.kernels.random_words import LANES, fill_draws
 
 __all__: list[str] = []
 
-#: Lattices of at least this many sites are swept one replica at a time (cache locality).
-REPLICA_BY_REPLICA_SITES = 1 << 18
 
 
 @jit_parallel
@@ -222,43 +220,42 @@ def glauber_checkerboard_bipartite(halves, states, up_limits, row_parity, row_ne
     n_rep = halves.shape[0]
     n_sub = block_rows.shape[0] - 1
     counts = np.zeros(n_rep * n_sub, dtype=np.int64)
-    if halves[0].size >= REPLICA_BY_REPLICA_SITES:
-        # Large lattices: one replica at a time, all its sweeps, so that its spins stay in
-        # cache between the colour steps. Each replica uses only its own streams, so the
-        # order of replicas changes no result.
-        for r in range(n_rep):
+    if n_rep > 1:
+        # Several replicas: each thread sweeps whole replicas, with no barrier between colour
+        # steps, so a thread slowed by another process delays only its own replicas, and a
+        # replica's spins stay in that core's cache.
+        for r in prange(n_rep):
             for t in range(sweeps):
                 for c in range(2):
-                    _colour_step(halves, states, up_limits, row_parity, row_neighbours,
-                                 block_rows, periodic, counts, r, 1, c, t)
+                    for b in range(n_sub):
+                        _block_any(halves, states, up_limits, row_parity, row_neighbours,
+                                   block_rows, r, b, c, t, periodic, counts)
     else:
+        # One lattice: the row blocks of each colour step in parallel.
         for t in range(sweeps):
             for c in range(2):
-                _colour_step(halves, states, up_limits, row_parity, row_neighbours,
-                             block_rows, periodic, counts, 0, n_rep, c, t)
+                for task in prange(n_sub):
+                    _block_any(halves, states, up_limits, row_parity, row_neighbours,
+                               block_rows, 0, task, c, t, periodic, counts)
     for task in range(n_rep * n_sub):
         flips[task // n_sub] += counts[task]
 
 
 @jit_inline
-def _colour_step(halves, states, up_limits, row_parity, row_neighbours, block_rows, periodic,
-                 counts, first, n_rep, c, t):
-    """Update colour c of replicas first .. first + n_rep - 1, row blocks in parallel."""
-    n_sub = block_rows.shape[0] - 1
+def _block_any(halves, states, up_limits, row_parity, row_neighbours, block_rows, r, b, c, t,
+               periodic, counts):
+    """Update row block b of colour c of replica r with the variant for its coordination."""
     n_thr = row_neighbours.shape[1] + 3
-    for task in prange(n_rep * n_sub):
-        r = first + task // n_sub
-        b = task % n_sub
-        slot = r * n_sub + b
-        if n_thr == 3:
-            counts[slot] += _block_3(halves, states, up_limits, row_parity, row_neighbours,
-                                     block_rows, r, b, c, t, periodic)
-        elif n_thr == 5:
-            counts[slot] += _block_5(halves, states, up_limits, row_parity, row_neighbours,
-                                     block_rows, r, b, c, t, periodic)
-        else:
-            counts[slot] += _block_7(halves, states, up_limits, row_parity, row_neighbours,
-                                     block_rows, r, b, c, t, periodic)
+    slot = r * (block_rows.shape[0] - 1) + b
+    if n_thr == 3:
+        counts[slot] += _block_3(halves, states, up_limits, row_parity, row_neighbours,
+                                 block_rows, r, b, c, t, periodic)
+    elif n_thr == 5:
+        counts[slot] += _block_5(halves, states, up_limits, row_parity, row_neighbours,
+                                 block_rows, r, b, c, t, periodic)
+    else:
+        counts[slot] += _block_7(halves, states, up_limits, row_parity, row_neighbours,
+                                 block_rows, r, b, c, t, periodic)
 
 
 @jit_parallel
