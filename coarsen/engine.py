@@ -325,7 +325,12 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
     acceptance : {"heat-bath", "metropolis"}, default: "heat-bath"
     update : {"random", "checkerboard"}, default: "random"
         Random-sequential (N attempts at uniformly chosen sites or bonds per sweep) or
-        sublattice sweeps (Glauber only).
+        sublattice sweeps (Glauber only). Metropolis acceptance with sublattice sweeps
+        forces every zero-energy flip, which makes the dynamics non-ergodic on small or
+        one-dimensional lattices: on a ring it conserves the difference of the bond sums of
+        even and odd bonds, so from a random start it does not reach equilibrium (see
+        ``tests/validation/test_enumeration.py``). Use heat-bath acceptance or random
+        updates there.
     J, h : float, default: 1.0, 0.0
         Coupling (either sign) and uniform field. Kawasaki exchanges do not depend on h.
 
