@@ -248,6 +248,10 @@ def substreams_needed(lattice: Lattice, rule: str = "glauber", update: str = "ra
     sublattice updates.
     """
     check_dynamics(lattice, rule, "heat-bath", update)
+    return _substreams(lattice, update)
+
+
+def _substreams(lattice: Lattice, update: str) -> int:
     if update == "checkerboard":
         return len(_row_blocks(_rows(lattice))) - 1
     return 1
@@ -355,7 +359,7 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
     J = _finite(J, "J")
     h = _finite(h, "h")
     n_rep = spins.shape[0]
-    check_streams(streams, n_rep, substreams_needed(lattice, rule, update))
+    check_streams(streams, n_rep, _substreams(lattice, update))
     moves = np.zeros(n_rep, dtype=np.int64)
     if sweeps == 0:
         return moves

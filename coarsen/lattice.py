@@ -1,4 +1,4 @@
-"""Lattice geometry: the four lattice kinds, their neighbours, sublattices and critical temperatures.
+"""Lattice geometry: the four lattice kinds, neighbours, sublattices, critical temperatures.
 
 Sites are addressed by integer coordinates ``(x,)``, ``(x, y)`` or ``(x, y, z)``; a spin
 configuration of one lattice is an array of shape ``lattice.shape`` and a stack of replicas has

@@ -26,7 +26,7 @@ __all__: list[str] = []
 
 @jit_parallel
 def split_colours(spins, row_parity, halves):
-    """Copy plain rows ``spins`` (R, rows, nx) into the colour-split ``halves`` (R, 2, rows, nx/2)."""
+    """Copy plain rows ``spins`` (R, rows, nx) into colour-split ``halves`` (R, 2, rows, nx/2)."""
     n_rep, rows, nx = spins.shape
     h = nx // 2
     for task in prange(n_rep * rows):
