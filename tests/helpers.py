@@ -10,6 +10,22 @@ from tests import reference
 __all__ = ["random_spins", "compare_with_twin"]
 
 
+#: The kernel comparisons run every lattice kind, boundary and acceptance rule.
+KINDS = ("chain", "square", "triangular", "cubic")
+BOUNDARIES = ("periodic", "open")
+ACCEPTANCES = ("heat-bath", "metropolis")
+#: Random-sequential comparisons, per kind: a size below 256 sites and one above, neither a
+#: multiple of 256, so the 256-attempt word blocks straddle the end of a sweep.
+RANDOM_SEQUENTIAL_SIZES = {
+    "chain": ((37,), (300,)),
+    "square": ((7, 5), (17, 16)),
+    "triangular": ((5, 7), (15, 19)),
+    "cubic": ((3, 4, 5), (7, 6, 7)),
+}
+#: One sweep at T = 0, then a per-sweep temperature array (T near and far above Tc).
+SCHEDULE = [(1, 0.0), (2, [1.1, 2.6])]
+
+
 def random_spins(rng: np.random.Generator, replicas: int, lattice, up_fraction=0.5) -> np.ndarray:
     """Independent random +-1 configurations, int8 of shape (replicas, *lattice.shape)."""
     shape = (replicas, *lattice.shape)

@@ -274,12 +274,14 @@ def _glauber_decision(word, old, field, table, z):
     return 1 if (word >> 1) <= table[row][field + z] else -1
 
 
-def glauber_sweep(s: list[int], stream: Stream, geometry: Geometry, table) -> int:
-    """One random-sequential Glauber sweep; ``table[row][field + z]`` are up thresholds."""
+def _site_attempts(stream: Stream, geometry: Geometry, per: int):
+    """Yield ``(site, words)`` for the N attempts of one random-sequential sweep.
+
+    Each attempt takes ``per`` words: one per coordinate (x first), then the rule's own
+    words. Words are drawn in blocks of 256 attempts, the leftover discarded at sweep end.
+    """
     d = geometry.dimension
-    per = d + 1
     axes = (geometry.nx, geometry.ny, geometry.nz)
-    changed = 0
     remaining = geometry.n_sites
     while remaining > 0:
         count = min(ATTEMPTS_PER_BLOCK, remaining)
@@ -287,12 +289,18 @@ def glauber_sweep(s: list[int], stream: Stream, geometry: Geometry, table) -> in
         for k in range(count):
             w = words[k * per:(k + 1) * per]
             c = [scale(w[i], axes[i]) for i in range(d)] + [0, 0]
-            site = geometry.index(c[0], c[1], c[2])
-            old = s[site]
-            new = _glauber_decision(w[d], old, _field(s, site, geometry), table, geometry.z)
-            changed += new != old
-            s[site] = new
+            yield geometry.index(c[0], c[1], c[2]), w[d:]
         remaining -= count
+
+
+def glauber_sweep(s: list[int], stream: Stream, geometry: Geometry, table) -> int:
+    """One random-sequential Glauber sweep; ``table[row][field + z]`` are up thresholds."""
+    changed = 0
+    for site, w in _site_attempts(stream, geometry, geometry.dimension + 1):
+        old = s[site]
+        new = _glauber_decision(w[0], old, _field(s, site, geometry), table, geometry.z)
+        changed += new != old
+        s[site] = new
     return changed
 
 
@@ -309,27 +317,16 @@ def _exchange_q(s, a, b, geometry):
 
 def kawasaki_local_sweep(s: list[int], stream: Stream, geometry: Geometry, table) -> int:
     """One sweep of nearest-neighbour exchanges; ``table[q + 2 z]`` are thresholds."""
-    d = geometry.dimension
-    per = d + 2
-    axes = (geometry.nx, geometry.ny, geometry.nz)
     z = geometry.z
     moves = 0
-    remaining = geometry.n_sites
-    while remaining > 0:
-        count = min(ATTEMPTS_PER_BLOCK, remaining)
-        words = stream.words(_draws_for(count * per))
-        for k in range(count):
-            w = words[k * per:(k + 1) * per]
-            c = [scale(w[i], axes[i]) for i in range(d)] + [0, 0]
-            a = geometry.index(c[0], c[1], c[2])
-            b = geometry.full[a][scale(w[d], z)]
-            if b is None or s[a] == s[b]:
-                continue
-            q = _exchange_q(s, a, b, geometry)
-            if (w[d + 1] >> 1) <= table[q + 2 * z]:
-                s[a], s[b] = s[b], s[a]
-                moves += 1
-        remaining -= count
+    for a, w in _site_attempts(stream, geometry, geometry.dimension + 2):
+        b = geometry.full[a][scale(w[0], z)]
+        if b is None or s[a] == s[b]:
+            continue
+        q = _exchange_q(s, a, b, geometry)
+        if (w[1] >> 1) <= table[q + 2 * z]:
+            s[a], s[b] = s[b], s[a]
+            moves += 1
     return moves
 
 

@@ -12,9 +12,8 @@ import pytest
 from coarsen.engine import advance, make_streams, substreams_needed, up_probabilities
 from coarsen.lattice import Lattice
 from tests import reference
-from tests.helpers import compare_with_twin, random_spins
+from tests.helpers import ACCEPTANCES, SCHEDULE, compare_with_twin, random_spins
 
-ACCEPTANCES = ("heat-bath", "metropolis")
 COUPLINGS = ((1.0, 0.0), (1.0, 0.35), (-1.0, 0.0), (-1.0, -0.7))
 #: For the larger sizes: four of the sixteen (acceptance, J, h) combinations, which still
 #: pair every acceptance with both signs of J and with zero and nonzero h.
@@ -30,7 +29,6 @@ SIZES = {
     ("cubic", "periodic"): ((4, 4, 4), (66, 4, 4), (4, 10, 8)),
     ("cubic", "open"): ((4, 3, 5), (66, 2, 3), (4, 9, 9)),
 }
-SCHEDULE = [(1, 0.0), (2, [1.1, 2.6])]
 
 
 @pytest.mark.parametrize("J, h", COUPLINGS)

@@ -9,27 +9,15 @@ import pytest
 
 from coarsen.engine import advance, make_streams
 from coarsen.lattice import Lattice
-from tests.helpers import compare_with_twin
+from tests.helpers import ACCEPTANCES, BOUNDARIES, KINDS, SCHEDULE, compare_with_twin
+from tests.helpers import RANDOM_SEQUENTIAL_SIZES as SIZES
 
-KINDS = ("chain", "square", "triangular", "cubic")
-BOUNDARIES = ("periodic", "open")
-ACCEPTANCES = ("heat-bath", "metropolis")
 #: (J, h): ferro and antiferro, with and without a field.
 COUPLINGS = ((1.0, 0.0), (1.0, 0.35), (-1.0, 0.0), (-1.0, -0.7))
 #: For the larger sizes: four of the sixteen (acceptance, J, h) combinations, which still
 #: pair every acceptance with both signs of J and with zero and nonzero h.
 FEW = (("heat-bath", 1.0, 0.35), ("heat-bath", -1.0, 0.0), ("metropolis", 1.0, 0.0),
        ("metropolis", -1.0, -0.7))
-#: Per kind: a size below 256 sites and one above, neither a multiple of 256, so the
-#: 256-attempt word blocks straddle the end of a sweep.
-SIZES = {
-    "chain": ((37,), (300,)),
-    "square": ((7, 5), (17, 16)),
-    "triangular": ((5, 7), (15, 19)),
-    "cubic": ((3, 4, 5), (7, 6, 7)),
-}
-#: One sweep at T = 0, then a per-sweep temperature array (T near and far above Tc).
-SCHEDULE = [(1, 0.0), (2, [1.1, 2.6])]
 
 
 @pytest.mark.parametrize("J, h", COUPLINGS)

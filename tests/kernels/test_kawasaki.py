@@ -9,11 +9,9 @@ import pytest
 
 from coarsen.engine import magnetization_per_site
 from coarsen.lattice import Lattice
-from tests.helpers import compare_with_twin
+from tests.helpers import ACCEPTANCES, BOUNDARIES, KINDS, SCHEDULE, compare_with_twin
+from tests.helpers import RANDOM_SEQUENTIAL_SIZES as SIZES
 
-KINDS = ("chain", "square", "triangular", "cubic")
-BOUNDARIES = ("periodic", "open")
-ACCEPTANCES = ("heat-bath", "metropolis")
 RULES = ("kawasaki", "kawasaki-nonlocal")
 #: Kawasaki exchanges do not depend on h; a nonzero h must change nothing (the twin ignores it).
 COUPLINGS = ((1.0, 0.0), (-1.0, 0.0), (1.0, 0.6), (-1.0, -0.4))
@@ -21,14 +19,6 @@ COUPLINGS = ((1.0, 0.0), (-1.0, 0.0), (1.0, 0.6), (-1.0, -0.4))
 #: pair every acceptance with both signs of J and with zero and nonzero h.
 FEW = (("heat-bath", 1.0, 0.6), ("heat-bath", -1.0, 0.0), ("metropolis", 1.0, 0.0),
        ("metropolis", -1.0, -0.4))
-#: A size below 256 sites and one above, neither a multiple of 256.
-SIZES = {
-    "chain": ((37,), (300,)),
-    "square": ((7, 5), (17, 16)),
-    "triangular": ((5, 7), (15, 19)),
-    "cubic": ((3, 4, 5), (7, 6, 7)),
-}
-SCHEDULE = [(1, 0.0), (2, [1.1, 2.6])]
 
 
 @pytest.mark.parametrize("J, h", COUPLINGS)
