@@ -11,6 +11,12 @@ is the spin at ``x = 2 m + ((row_parity[row] + c) & 1)`` of that row, so a colou
 row are contiguous and the update loop vectorises. The decision "new spin up" is the test
 ``w >> 1 <= limit[old, f]`` of the other kernels, written without a table lookup: for the few
 field values f_j that occur in a row, ``OR_j (f == f_j AND w >> 1 <= limit[old, f_j])``.
+Rows are updated in *runs* of consecutive rows whose neighbour rows across y and z are
+consecutive too (at most ``RUN_SITES`` sites), so that the sums over those neighbours are
+one long vector loop over the run rather than four short ones per row, and for periodic rows
+of whole draws the decisions too: a 128^3 lattice has rows of only 64 sites of a colour.
+The flat indexing into whole colour arrays (no per-row array views) avoids reference-count
+updates in the row loop.
 """
 
 import numpy as np
@@ -22,6 +28,8 @@ from coarsen.kernels.random_words import LANES, fill_draws
 
 __all__: list[str] = []
 
+#: Sites of one colour updated as one run of rows (the run's scratch stays in L1).
+RUN_SITES = 4096
 
 
 @jit_parallel
@@ -55,11 +63,106 @@ def merge_colours(halves, row_parity, spins):
 
 
 @jit_inline
-def _span(me, tsum, left, right, words, lo, hi, shift, plus, minus, fields, n_thr):
-    """Update ``me[lo:hi]``; site m has in-row neighbours ``left[m]`` and ``right[m + shift]``.
+def _run_length(nbrs, row, stop, cap):
+    """Number of rows from ``row`` (at most ``cap``, before ``stop``) that form one *run*.
 
-    ``fields[j]`` is the j-th field value that occurs in the row and ``plus[j]``/``minus[j]``
-    its threshold for old spin +1/-1. The decision is the mask expression
+    In a run every transverse neighbour row is present for all rows or for none, and rows
+    ``row + k`` have neighbour rows ``nbrs[row, q] + k``: each neighbour of the run is then
+    one contiguous span of the other colour's array.
+    """
+    n = 1
+    while n < cap and row + n < stop:
+        for q in range(nbrs.shape[1]):
+            first = nbrs[row, q]
+            here = nbrs[row + n, q]
+            if (first < 0) != (here < 0) or (first >= 0 and here != first + n):
+                return n
+        n += 1
+    return n
+
+
+@jit_inline
+def _transverse_sums(tsum, other, row, n_run, nbrs, h):
+    """Set ``tsum[i]``, i < n_run h, to the sum of the other colour at the same position and
+    in the present transverse neighbour rows; return the number of those rows present."""
+    n = n_run * h
+    mid = row * h
+    n_nb = nbrs.shape[1]
+    present = 0
+    for q in range(n_nb):
+        if nbrs[row, q] >= 0:
+            present += 1
+    if present == 4 and n_nb == 4:
+        a = nbrs[row, 0] * h
+        b = nbrs[row, 1] * h
+        c = nbrs[row, 2] * h
+        d = nbrs[row, 3] * h
+        for i in range(n):
+            tsum[i] = np.int8(other[np.uint64(mid + i)] + other[np.uint64(a + i)]
+                              + other[np.uint64(b + i)] + other[np.uint64(c + i)]
+                              + other[np.uint64(d + i)])
+    elif present == 2 and n_nb == 2:
+        a = nbrs[row, 0] * h
+        b = nbrs[row, 1] * h
+        for i in range(n):
+            tsum[i] = np.int8(other[np.uint64(mid + i)] + other[np.uint64(a + i)]
+                              + other[np.uint64(b + i)])
+    else:
+        for i in range(n):
+            tsum[i] = other[np.uint64(mid + i)]
+        for q in range(n_nb):
+            nb = nbrs[row, q]
+            if nb >= 0:
+                for i in range(n):
+                    tsum[i] = np.int8(tsum[i] + other[np.uint64(nb * h + i)])
+    return present
+
+
+@jit_inline
+def _add_lateral(tsum, t0, other, o0, h, parity, periodic):
+    """Add the in-row neighbour that ``tsum`` lacks: ``other[m - 1]`` (parity 0) or
+    ``other[m + 1]`` (parity 1) of the row at ``o0``; across the row's end the wrapped site if
+    periodic, nothing if open."""
+    if parity == 0:
+        for m in range(1, h):
+            tsum[np.uint64(t0 + m)] = np.int8(tsum[np.uint64(t0 + m)]
+                                              + other[np.uint64(o0 + m - 1)])
+        edge = 0
+        wrap = h - 1
+    else:
+        for m in range(h - 1):
+            tsum[np.uint64(t0 + m)] = np.int8(tsum[np.uint64(t0 + m)]
+                                              + other[np.uint64(o0 + m + 1)])
+        edge = h - 1
+        wrap = 0
+    if periodic:
+        tsum[np.uint64(t0 + edge)] = np.int8(tsum[np.uint64(t0 + edge)]
+                                             + other[np.uint64(o0 + wrap)])
+
+
+@jit_inline
+def _set_thresholds(table, z_row, plus, minus, fields, n_thr):
+    """The field values -z_row, -z_row + 2, ..., z_row of sites with z_row neighbours, and
+    their thresholds for old spin +1 (``plus``) and -1 (``minus``); unused slots match nothing."""
+    z = (table.shape[1] - 1) // 2
+    for j in range(n_thr):
+        if j <= z_row:
+            fields[j] = 2 * j - z_row
+            plus[j] = table[1, 2 * j - z_row + z]
+            minus[j] = table[0, 2 * j - z_row + z]
+        else:
+            fields[j] = 127
+            plus[j] = -1
+            minus[j] = -1
+
+
+@jit_inline
+def _decide(me, m0, tsum, t0, words, w0, n, plus, minus, fields, n_thr):
+    """Update ``me[m0:m0 + n]``; site i has neighbour sum ``tsum[t0 + i]`` and the random word
+    ``words[w0 + i]``.
+
+    ``fields[j]`` is the j-th field value that occurs and ``plus[j]``/``minus[j]`` its
+    threshold for old spin +1/-1. The decision is the mask expression
     ``OR_j (field == fields[j] AND w >> 1 <= threshold_j)``: no table lookup, and only 8-bit
     and 32-bit lanes, so the loop vectorises. Thresholds and fields are copied to scalars so
     that the compiler keeps them in registers (stores to ``me`` could otherwise alias them),
@@ -87,11 +190,11 @@ def _span(me, tsum, left, right, words, lo, hi, shift, plus, minus, fields, n_th
     f5 = fields[5]
     f6 = fields[6]
     changed = np.int32(0)
-    for m in range(lo, hi):
-        field = np.int8(tsum[m] + left[m] + right[m + shift])
-        old = me[m]
+    for i in range(n):
+        field = tsum[np.uint64(t0 + i)]
+        old = me[np.uint64(m0 + i)]
         was_up = old > 0
-        x = np.int32(words[m] >> np.uint32(1))
+        x = np.int32(words[np.uint64(w0 + i)] >> np.uint32(1))
         up = (((field == f0) & (x <= (p0 if was_up else q0)))
               | ((field == f1) & (x <= (p1 if was_up else q1)))
               | ((field == f2) & (x <= (p2 if was_up else q2))))
@@ -103,83 +206,77 @@ def _span(me, tsum, left, right, words, lo, hi, shift, plus, minus, fields, n_th
                   | ((field == f6) & (x <= (p6 if was_up else q6))))
         new = np.int8(1) if up else np.int8(-1)
         changed = np.int32(changed + np.int32(new != old))
-        me[m] = new
+        me[np.uint64(m0 + i)] = new
     return np.int64(changed)
 
 
 @jit_inline
-def _row(me, other, row, parity, nbrs, words, tsum, table, plus, minus, fields, periodic,
-         n_thr):
-    h = me.shape[0]
+def _decide_edge(me, m, field, x_word, table):
+    """The table decision for one site (an edge site of an open row, which has one neighbour
+    fewer than the inner sites, so the mask expression of :func:`_decide` does not cover it)."""
     z = (table.shape[1] - 1) // 2
-    for m in range(h):
-        tsum[m] = 0
-    present = 0
-    for q in range(nbrs.shape[1]):
-        nb = nbrs[row, q]
-        if nb >= 0:
-            present += 1
-            src = other[nb]
-            for m in range(h):
-                tsum[m] = np.int8(tsum[m] + src[m])
-    z_row = present + 2
-    # The field values -z_row, -z_row + 2, ..., z_row of the row's inner sites.
-    for j in range(n_thr):
-        if j <= z_row:
-            fields[j] = 2 * j - z_row
-            plus[j] = table[1, 2 * j - z_row + z]
-            minus[j] = table[0, 2 * j - z_row + z]
-        else:
-            fields[j] = 127  # matches no field
-            plus[j] = -1
-            minus[j] = -1
-    mid = other[row]
-    changed = 0
-    # parity 0: in-row neighbours at m - 1 and m; parity 1: at m and m + 1.
-    if parity == 0:
-        edge = 0
-        changed += _span(me, tsum, mid, mid, words, 1, h, -1, plus, minus, fields, n_thr)
-        wrap = h - 1
-    else:
-        edge = h - 1
-        changed += _span(me, tsum, mid, mid, words, 0, h - 1, 1, plus, minus, fields, n_thr)
-        wrap = 0
-    field = np.int64(tsum[edge]) + mid[edge]
-    if periodic:
-        field += mid[wrap]
-    old = me[edge]
-    x = np.int32(words[edge] >> np.uint32(1))
+    old = me[np.uint64(m)]
+    x = np.int32(x_word >> np.uint32(1))
     new = np.int8(1) if x <= table[(old + 1) >> 1, field + z] else np.int8(-1)
-    changed += np.int64(new != old)
-    me[edge] = new
-    return changed
+    me[np.uint64(m)] = new
+    return np.int64(new != old)
 
 
 def _make_block(n_thr):
     """Update one row block of one colour; compiled once per threshold count n_thr (3, 5, 7
-    for chain, square, cubic), a constant the vectorised loop needs at compile time."""
+    for chain, square, cubic), a constant the vectorised loop needs at compile time.
+
+    The block's rows go in runs (:func:`_run_length`) of at most ``RUN_SITES`` sites: the
+    words of the whole run are drawn at once (row after row, the same words as row by row),
+    the neighbour sums across rows are one long vector loop over the run, and the in-row
+    neighbour is added row by row. With periodic rows whose words fill whole draws, site i of
+    the run takes word i, so the decisions are one vector loop over the run; otherwise they
+    go row by row, the edge site of an open row apart.
+    """
 
     @jit_serial
     def block(halves, states, tables, row_parity, row_neighbours, block_rows, r, b, c, t,
               periodic):
-        me_all = halves[r, c]
-        other = halves[r, 1 - c]
+        rows = halves.shape[2]
         h = halves.shape[3]
+        me = halves[r, c].reshape(rows * h)
+        other = halves[r, 1 - c].reshape(rows * h)
         n_blocks = (h + 2 * LANES - 1) // (2 * LANES)
-        buffer = np.empty(n_blocks * LANES, dtype=np.uint64)
+        per_row = n_blocks * 2 * LANES
+        cap = max(1, RUN_SITES // h)
+        buffer = np.empty(cap * n_blocks * LANES, dtype=np.uint64)
         words = buffer.view(np.uint32)
-        tsum = np.empty(h, dtype=np.int8)
+        tsum = np.empty(cap * h, dtype=np.int8)
         plus = np.empty(8, dtype=np.int32)
         minus = np.empty(8, dtype=np.int32)
         fields = np.empty(8, dtype=np.int8)
         table = tables[min(t, tables.shape[0] - 1)]
         state = states[r, b]
+        whole = periodic and per_row == h
         changed = 0
-        for row in range(block_rows[b], block_rows[b + 1]):
-            fill_draws(state, buffer, n_blocks)
-            parity = (row_parity[row] + c) & 1
-            changed += _row(me_all[row], other, row, parity, row_neighbours, words, tsum, table,
-                            plus, minus, fields, periodic, n_thr)
+        row = block_rows[b]
+        stop = block_rows[b + 1]
+        while row < stop:
+            n_run = _run_length(row_neighbours, row, stop, cap)
+            fill_draws(state, buffer, n_run * n_blocks)
+            present = _transverse_sums(tsum, other, row, n_run, row_neighbours, h)
+            _set_thresholds(table, present + 2, plus, minus, fields, n_thr)
+            for k in range(n_run):
+                parity = (row_parity[row + k] + c) & 1
+                _add_lateral(tsum, k * h, other, (row + k) * h, h, parity, periodic)
+            # One decision loop over the whole run, or one per row (the edge site of an open
+            # row apart); a single call site keeps one copy of the vector loop.
+            for k in range(1 if whole else n_run):
+                parity = (row_parity[row + k] + c) & 1
+                lo = 0 if periodic else (1 if parity == 0 else 0)
+                n = n_run * h if whole else (h if periodic else h - 1)
+                changed += _decide(me, (row + k) * h + lo, tsum, k * h + lo, words,
+                                   k * per_row + lo, n, plus, minus, fields, n_thr)
+                if not periodic:
+                    edge = 0 if parity == 0 else h - 1
+                    changed += _decide_edge(me, (row + k) * h + edge, tsum[k * h + edge],
+                                            words[k * per_row + edge], table)
+            row += n_run
         return changed
 
     return block

@@ -99,3 +99,34 @@ def neighbour_index(x, y, z, dx, dy, dz, nx, ny, nz, periodic):
     yn = yn + ny if yn < 0 else (yn - ny if yn >= ny else yn)
     zn = zn + nz if zn < 0 else (zn - nz if zn >= nz else zn)
     return (zn * ny + yn) * nx + xn
+
+
+@jit_inline
+def periodic_neighbours(x, y, z, nx, ny, nz, kind):
+    """Flat indices of the neighbours of site (x, y, z) of a periodic lattice, as a 6-tuple:
+    x - 1 and x + 1, then (not for the chain) y - 1 and y + 1, then the triangular diagonals
+    (x + 1, y + 1) and (x - 1, y - 1) or the cubic z - 1 and z + 1; entries past the
+    coordination are 0. Written for vectorised loops (selects, no branches on data)."""
+    xm = x - 1 if x > 0 else nx - 1
+    xp = x + 1 if x < nx - 1 else 0
+    row = (z * ny + y) * nx
+    n0 = row + xm
+    n1 = row + xp
+    n2 = 0
+    n3 = 0
+    n4 = 0
+    n5 = 0
+    if kind != CHAIN:
+        ym = y - 1 if y > 0 else ny - 1
+        yp = y + 1 if y < ny - 1 else 0
+        n2 = (z * ny + ym) * nx + x
+        n3 = (z * ny + yp) * nx + x
+        if kind == TRIANGULAR:
+            n4 = (z * ny + yp) * nx + xp
+            n5 = (z * ny + ym) * nx + xm
+        elif kind == CUBIC:
+            zm = z - 1 if z > 0 else nz - 1
+            zp = z + 1 if z < nz - 1 else 0
+            n4 = (zm * ny + y) * nx + x
+            n5 = (zp * ny + y) * nx + x
+    return n0, n1, n2, n3, n4, n5

@@ -19,7 +19,14 @@ import numpy as np
 from numba import prange
 
 from coarsen.kernels._options import jit_inline, jit_parallel, jit_serial
-from coarsen.kernels.geometry import SQUARE, local_field, neighbour_index, prefetch_site
+from coarsen.kernels.geometry import (
+    SQUARE,
+    local_field,
+    neighbour_index,
+    periodic_neighbours,
+    prefetch,
+    prefetch_site,
+)
 from coarsen.kernels.random_words import LANES, fill_draws, scale_word
 
 __all__: list[str] = []
@@ -38,18 +45,134 @@ def _coordinates(site, nx, ny):
 
 def _make_local_sweep(fixed_kind):
     """One replica's sweep; ``fixed_kind >= 0`` compiles a copy for periodic lattices of that
-    kind, whose constant geometry the compiler folds in."""
+    kind (:func:`_periodic_local_sweep_body`), whose constant geometry the compiler folds in."""
 
     @jit_serial
-    def sweep(spins, state, limits, step_x, step_y, step_z, dims, kind, periodic, buffer, xs,
-              ys, zs):
+    def sweep(spins, state, limits, step_x, step_y, step_z, dims, kind, periodic, buffer,
+              index):
         if fixed_kind >= 0:
-            return _local_sweep_body(spins, state, limits, step_x, step_y, step_z, dims,
-                                     fixed_kind, True, buffer, xs, ys, zs)
+            return _periodic_local_sweep_body(spins, state, limits, step_x, step_y, step_z,
+                                              dims, fixed_kind, buffer, index)
         return _local_sweep_body(spins, state, limits, step_x, step_y, step_z, dims, kind,
-                                 periodic, buffer, xs, ys, zs)
+                                 periodic, buffer, index[0], index[1], index[2])
 
     return sweep
+
+
+@jit_inline
+def _steps(steps, n_dir):
+    """The (at most 6) entries of ``steps`` as a tuple of scalars, 0 past ``n_dir``."""
+    return (steps[0], steps[1], steps[2] if n_dir > 2 else 0, steps[3] if n_dir > 3 else 0,
+            steps[4] if n_dir > 4 else 0, steps[5] if n_dir > 5 else 0)
+
+
+@jit_inline
+def _select(direction, s):
+    """``s[direction]`` for a 6-tuple ``s``, as a chain of selects (which vectorises)."""
+    return (s[0] if direction == 0 else (s[1] if direction == 1 else (
+        s[2] if direction == 2 else (s[3] if direction == 3 else (
+            s[4] if direction == 4 else s[5])))))
+
+
+@jit_inline
+def _periodic_local_sweep_body(spins, state, limits, step_x, step_y, step_z, dims, kind,
+                               buffer, index):
+    """A sweep of a periodic lattice in two passes over each block of attempts.
+
+    The first pass (vectorised) turns the words into flat indices: site a (``index[0]``),
+    its partner b (``index[1]``), the neighbours of a (``index[2:z + 2]``) and those of b
+    (``index[z + 2:2 z + 2]``). The second makes the exchanges one after the other.
+    """
+    nx = dims[0]
+    ny = dims[1]
+    nz = dims[2]
+    n_sites = nx * ny * nz
+    d = 1 if kind == 0 else (3 if kind == 3 else 2)
+    n_dir = 2 if kind == 0 else (4 if kind == 1 else 6)
+    shift = 2 * n_dir
+    per = d + 2
+    use_prefetch = n_sites >= PREFETCH_MIN_SITES
+    words = buffer.view(np.uint32)
+    sx = _steps(step_x, n_dir)
+    sy = _steps(step_y, n_dir)
+    sz = _steps(step_z, n_dir)
+    moves = 0
+    remaining = n_sites
+    while remaining > 0:
+        count = min(ATTEMPTS_PER_BLOCK, remaining)
+        blocks = (count * per + 2 * LANES - 1) // (2 * LANES)
+        fill_draws(state, buffer, blocks)
+        for k in range(count):
+            if per == 4:
+                # The four words of an attempt are two whole draws: read them as such (two
+                # contiguous loads) rather than word by word (a gather in the vector loop).
+                low = buffer[2 * k]
+                high = buffer[2 * k + 1]
+                x = scale_word(np.uint32(low & np.uint64(0xFFFFFFFF)), nx)
+                y = scale_word(np.uint32(low >> np.uint64(32)), ny)
+                z = 0
+                direction = scale_word(np.uint32(high & np.uint64(0xFFFFFFFF)), n_dir)
+            else:
+                base = k * per
+                x = scale_word(words[base], nx)
+                y = scale_word(words[base + 1], ny) if d > 1 else 0
+                z = scale_word(words[base + 2], nz) if d > 2 else 0
+                direction = scale_word(words[base + d], n_dir)
+            xb = x + _select(direction, sx)
+            xb = xb + nx if xb < 0 else (xb - nx if xb >= nx else xb)
+            yb = y
+            zb = z
+            if d > 1:
+                yb = y + _select(direction, sy)
+                yb = yb + ny if yb < 0 else (yb - ny if yb >= ny else yb)
+            if d > 2:
+                zb = z + _select(direction, sz)
+                zb = zb + nz if zb < 0 else (zb - nz if zb >= nz else zb)
+            index[0, k] = (z * ny + y) * nx + x
+            index[1, k] = (zb * ny + yb) * nx + xb
+            a0, a1, a2, a3, a4, a5 = periodic_neighbours(x, y, z, nx, ny, nz, kind)
+            b0, b1, b2, b3, b4, b5 = periodic_neighbours(xb, yb, zb, nx, ny, nz, kind)
+            index[2, k] = a0
+            index[3, k] = a1
+            index[2 + n_dir, k] = b0
+            index[3 + n_dir, k] = b1
+            if n_dir > 2:
+                index[4, k] = a2
+                index[5, k] = a3
+                index[4 + n_dir, k] = b2
+                index[5 + n_dir, k] = b3
+            if n_dir > 4:
+                index[6, k] = a4
+                index[7, k] = a5
+                index[6 + n_dir, k] = b4
+                index[7 + n_dir, k] = b5
+        for k in range(count):
+            if use_prefetch and k + PREFETCH_DISTANCE < count:
+                j = k + PREFETCH_DISTANCE
+                prefetch(spins, np.uint64(index[0, j]))
+                prefetch(spins, np.uint64(index[1, j]))
+                for q in range(2, n_dir):  # the x neighbours share a's and b's lines
+                    prefetch(spins, np.uint64(index[2 + q, j]))
+                    prefetch(spins, np.uint64(index[2 + n_dir + q, j]))
+            a = np.uint64(index[0, k])
+            b = np.uint64(index[1, k])
+            sa = spins[a]
+            sb = spins[b]
+            fa = np.int64(0)
+            fb = np.int64(0)
+            for q in range(n_dir):
+                fa += spins[np.uint64(index[2 + q, k])]
+                fb += spins[np.uint64(index[2 + n_dir + q, k])]
+            q_energy = sa * (fa - fb) + 2
+            w = np.int32(words[k * per + d + 1] >> np.uint32(1))
+            # No branch: whether the spins differ and whether the move is accepted are both
+            # unpredictable; equal spins give a valid table index and no swap.
+            swap = (sa != sb) & (w <= limits[np.uint64(q_energy + shift)])
+            spins[a] = sb if swap else sa
+            spins[b] = sa if swap else sb
+            moves += np.int64(swap)
+        remaining -= count
+    return moves
 
 
 @jit_inline
@@ -150,19 +273,17 @@ def kawasaki_local(spins, states, exchange_limits, offsets, dims, kind, periodic
     step_z = np.ascontiguousarray(offsets[:, 2])
     for r in prange(n_rep):
         buffer = np.empty(ATTEMPTS_PER_BLOCK * 5 // 2 + LANES, dtype=np.uint64)
-        xs = np.empty(ATTEMPTS_PER_BLOCK, dtype=np.int64)
-        ys = np.empty(ATTEMPTS_PER_BLOCK, dtype=np.int64)
-        zs = np.empty(ATTEMPTS_PER_BLOCK, dtype=np.int64)
+        index = np.empty((14, ATTEMPTS_PER_BLOCK), dtype=np.int64)
         total = 0
         for t in range(sweeps):
             table = exchange_limits[min(t, n_tables - 1)]
             if kind == SQUARE and periodic:
                 total += _local_sweep_square_periodic(spins[r], states[r], table, step_x, step_y,
-                                                      step_z, dims, kind, periodic, buffer, xs,
-                                                      ys, zs)
+                                                      step_z, dims, kind, periodic, buffer,
+                                                      index)
             else:
                 total += _local_sweep_any(spins[r], states[r], table, step_x, step_y, step_z,
-                                          dims, kind, periodic, buffer, xs, ys, zs)
+                                          dims, kind, periodic, buffer, index)
         moves[r] += total
 
 
