@@ -532,3 +532,199 @@ def checkerboard_sweeps_numpy(spins, streams, lattice, table):
         spins[r] = s.reshape(spins.shape[1:]).astype(np.int8)
         streams[r] = bank.states()
     return changed
+
+
+# --------------------------------------------------------------------------------------------
+# observables: S(k) by direct summation, C(r) by pair loops, domains by breadth-first search
+# --------------------------------------------------------------------------------------------
+# Written from the definitions in shared/DESIGN.md and the observables issue: sites at
+# r = x a_x + y a_y + z a_z (triangular: a_x = (1, 0), a_y = (-1/2, sqrt 3 / 2)); wavevectors
+# of the discrete Fourier grid k = sum_a (2 pi m_a / L_a) b_a with b the reciprocal basis
+# (a_a . b_c = delta_ac); |k| the shortest equivalent wavevector, |d| the shortest periodic
+# image; shells of width 2 pi / extent and unit distance bins, "extent" the length of the
+# shortest translation of the box by whole periods. Nothing here imports coarsen.observables.
+
+import collections  # noqa: E402
+import itertools  # noqa: E402
+
+__all__ += [
+    "LATTICE_VECTORS",
+    "correlation_pairs",
+    "domains_bfs",
+    "radial_correlation_pairs",
+    "radial_structure_factor_direct",
+    "structure_factor_direct",
+]
+
+#: Lattice vectors a_x, a_y, a_z (rows) in Cartesian coordinates.
+LATTICE_VECTORS = {
+    "chain": np.array([[1.0]]),
+    "square": np.eye(2),
+    "triangular": np.array([[1.0, 0.0], [-0.5, math.sqrt(3.0) / 2.0]]),
+    "cubic": np.eye(3),
+}
+
+_EDGE = 1e-9  # a length on a shell or bin edge goes to the upper one
+
+
+def _coordinates(size) -> np.ndarray:
+    """(N, d) integer site coordinates (x, y, z) of the flat C-order sites of shape size[::-1]."""
+    grids = np.meshgrid(*[np.arange(n) for n in size], indexing="ij")  # (x, y, z) order
+    coords = np.stack([g.ravel() for g in grids], axis=1)
+    flat = np.zeros(len(coords), dtype=np.int64)
+    stride = 1
+    for axis, n in enumerate(size):
+        flat += coords[:, axis] * stride
+        stride *= n
+    out = np.empty_like(coords)
+    out[flat] = coords
+    return out
+
+
+def _images(d: int, reach: int = 2):
+    return [np.array(n) for n in itertools.product(range(-reach, reach + 1), repeat=d)]
+
+
+def _extent(kind, size) -> float:
+    vectors = LATTICE_VECTORS[kind]
+    size = np.array(size, dtype=float)
+    return min(float(np.linalg.norm((n * size) @ vectors))
+               for n in _images(len(size)) if np.any(n))
+
+
+def _reciprocal(kind) -> np.ndarray:
+    """Rows b_a with a_a . b_c = delta_ac."""
+    return np.linalg.inv(LATTICE_VECTORS[kind]).T
+
+
+def _present(size, mask) -> np.ndarray:
+    n = math.prod(size)
+    return np.ones(n, dtype=bool) if mask is None else np.asarray(mask).ravel().astype(bool)
+
+
+def structure_factor_direct(spins, kind: str, size, mask=None) -> np.ndarray:
+    """S(k) = |sum over present j of s_j exp(i k . r_j)|**2 / N_present for every wavevector
+    of the Fourier grid: ndarray (R, *size[::-1]) indexed [r, m_z, m_y, m_x]."""
+    size = tuple(size)
+    d = len(size)
+    coords = _coordinates(size)
+    present = _present(size, mask)
+    positions = coords @ LATTICE_VECTORS[kind]
+    m = _coordinates(size)  # the integer wavevector indices, same enumeration
+    k = (2 * np.pi * m / np.array(size)) @ _reciprocal(kind)
+    phase = np.exp(1j * (k @ positions[present].T))  # (N_k, N_present)
+    s = np.asarray(spins, dtype=float).reshape(len(spins), -1)[:, present]
+    amplitude = s @ phase.T
+    out = np.abs(amplitude) ** 2 / present.sum()
+    return out.reshape(len(spins), *size[::-1])
+
+
+def _wavevector_lengths(kind, size) -> np.ndarray:
+    """|k| of the flat grid wavevectors, shortest over reciprocal-lattice translations."""
+    m = _coordinates(tuple(size))
+    recip = _reciprocal(kind)
+    k = (2 * np.pi * m / np.array(size)) @ recip
+    shifts = [2 * np.pi * (n @ recip) for n in _images(len(size))]
+    return np.min([np.linalg.norm(k + g, axis=1) for g in shifts], axis=0)
+
+
+def radial_structure_factor_direct(spins, kind: str, size, mask=None):
+    """Shell means of the direct-sum S(k): (shell centres, values (R, n_shells)), non-empty
+    shells of width 2 pi / extent, wavevector in shell floor(|k| / dk + 1/2)."""
+    s = structure_factor_direct(spins, kind, size, mask).reshape(len(spins), -1)
+    dk = 2 * np.pi / _extent(kind, size)
+    shell = np.floor(_wavevector_lengths(kind, size) / dk + 0.5 + _EDGE).astype(int)
+    centres = np.unique(shell)
+    values = np.stack([s[:, shell == c].mean(axis=1) for c in centres], axis=1)
+    return centres * dk, values
+
+
+def _pair_table(spins, kind, size, periodic, mask):
+    """Every ordered pair (i, j) of present sites: displacement key (tuple), length, s_i s_j."""
+    size = tuple(size)
+    coords = _coordinates(size)
+    present = np.flatnonzero(_present(size, mask))
+    vectors = LATTICE_VECTORS[kind]
+    s = np.asarray(spins, dtype=float).reshape(len(spins), -1)
+    i, j = np.meshgrid(present, present, indexing="ij")
+    i, j = i.ravel(), j.ravel()
+    delta = coords[j] - coords[i]
+    if periodic:
+        key = delta % np.array(size)
+        lengths = np.min([np.linalg.norm((delta + n * np.array(size)) @ vectors, axis=1)
+                          for n in _images(len(size))], axis=0)
+    else:
+        key = delta % (2 * np.array(size) - 1)
+        lengths = np.linalg.norm(delta @ vectors, axis=1)
+    return key, lengths, s[:, i] * s[:, j]
+
+
+def correlation_pairs(spins, kind: str, size, periodic: bool = True, mask=None) -> np.ndarray:
+    """C(d) = mean of s_i s_(i+d) over the ordered pairs of present sites at displacement d.
+
+    Returns ndarray (R, *shape) with shape = size[::-1] (periodic, index d mod L) or
+    (2 L - 1)[::-1] (open, index d mod (2 L - 1)); NaN where no pair has that displacement.
+    """
+    size = tuple(size)
+    key, _, products = _pair_table(spins, kind, size, periodic, mask)
+    dims = np.array(size) if periodic else 2 * np.array(size) - 1
+    flat = np.zeros(len(key), dtype=np.int64)
+    stride = 1
+    for axis, n in enumerate(dims):
+        flat += key[:, axis] * stride
+        stride *= n
+    total = np.zeros((len(spins), stride))
+    count = np.zeros(stride)
+    np.add.at(count, flat, 1.0)
+    for r in range(len(spins)):
+        np.add.at(total[r], flat, products[r])
+    with np.errstate(invalid="ignore"):
+        out = np.where(count > 0, total / count, np.nan)
+    return out.reshape(len(spins), *dims[::-1])
+
+
+def radial_correlation_pairs(spins, kind: str, size, periodic: bool = True, mask=None):
+    """Bin means of s_i s_j over ordered pairs: (bin centres, values (R, n_bins)); bins of
+    width 1 centred on 0 .. floor(extent / 2), pair in bin floor(|d| + 1/2), farther pairs out."""
+    key, lengths, products = _pair_table(spins, kind, size, periodic, mask)
+    n_bins = int(math.floor(_extent(kind, size) / 2)) + 1
+    b = np.floor(lengths + 0.5 + _EDGE).astype(int)
+    use = lengths < n_bins - 0.5
+    centres = np.unique(b[use])
+    values = np.stack([products[:, use & (b == c)].mean(axis=1) for c in centres], axis=1)
+    return centres.astype(float), values
+
+
+def domains_bfs(spins_one, kind: str, size, periodic: bool = True, mask=None) -> np.ndarray:
+    """Domains of one configuration by breadth-first search over equal-sign neighbours.
+
+    Neighbours from ``OFFSETS`` (wrapped on a torus, dropped across open edges); masked sites
+    get label 0 and join nothing. Returns labels 1..n in the shape size[::-1].
+    """
+    size = tuple(size)
+    n = math.prod(size)
+    coords = _coordinates(size)
+    present = _present(size, mask)
+    s = np.asarray(spins_one).ravel()
+    strides = [math.prod(size[:a]) for a in range(len(size))]
+    labels = np.zeros(n, dtype=np.int64)
+    current = 0
+    for start in range(n):
+        if not present[start] or labels[start]:
+            continue
+        current += 1
+        labels[start] = current
+        queue = collections.deque([start])
+        while queue:
+            site = queue.popleft()
+            for off in OFFSETS[kind]:
+                target = coords[site] + np.array(off[: len(size)])
+                if periodic:
+                    target %= np.array(size)
+                elif np.any(target < 0) or np.any(target >= np.array(size)):
+                    continue
+                other = int(sum(int(t) * st for t, st in zip(target, strides)))
+                if present[other] and not labels[other] and s[other] == s[site]:
+                    labels[other] = current
+                    queue.append(other)
+    return labels.reshape(size[::-1])
