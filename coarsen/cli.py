@@ -70,6 +70,141 @@ def _add_bench(subcommands) -> None:
     bench.set_defaults(handler=_run_bench)
 
 
+def _seconds(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
+    if not value > 0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(f"{text!r} must be a finite number of seconds > 0")
+    return value
+
+
+def _time_value(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a time in sweeps") from None
+    if not (value >= 0 and value != float("inf")):
+        raise argparse.ArgumentTypeError(f"{text!r} must be a finite time >= 0")
+    return value
+
+
+def _add_run(subcommands) -> None:
+    run = subcommands.add_parser(
+        "run",
+        help="simulate a spec file and write its dataset",
+        description=(
+            "Run the replicas of a spec file (TOML) to each measurement time, measure them "
+            "and write the dataset as NetCDF. A checkpoint beside the output "
+            "(OUTPUT.checkpoint) is kept up to date while the run goes; --resume continues "
+            "from it, with the same result as an uninterrupted run."
+        ),
+    )
+    run.add_argument("spec", metavar="SPEC.toml", help="the spec file")
+    run.add_argument("-o", "--output", required=True, metavar="OUT.nc",
+                     help="where to write the dataset (NetCDF-4)")
+    run.add_argument("--threads", type=_thread_count, default=None, metavar="N",
+                     help="threads for the dynamics (default: all cores); the result is the "
+                          "same for any N")
+    run.add_argument("--resume", action="store_true",
+                     help="continue from OUTPUT.checkpoint if it exists")
+    run.add_argument("--checkpoint-every", type=_seconds, default=60.0, metavar="SECONDS",
+                     help="seconds between checkpoints (default: 60)")
+    run.add_argument("--lengths-csv", default=None, metavar="LENGTHS.csv",
+                     help="also write the replica-mean lengths (corr_half) as CSV")
+    run.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+    run.set_defaults(handler=_run_run)
+
+
+def _add_measure(subcommands) -> None:
+    measure = subcommands.add_parser(
+        "measure",
+        help="measure lab snapshots (.npy, .npz, .nc) with the observables of a run",
+        description=(
+            "Measure a stack of snapshots (shots x sites per axis, values 0/1 or -1/+1, "
+            "optional times and mask in a .npz) and write a dataset with the variables of a "
+            "run; shots at the same time play the role of replicas."
+        ),
+    )
+    measure.add_argument("snapshots", metavar="SNAPSHOTS", help=".npy, .npz or .nc file")
+    measure.add_argument("-o", "--output", required=True, metavar="OUT.nc",
+                         help="where to write the dataset (NetCDF-4)")
+    measure.add_argument("--order", choices=("ferro", "neel"), default="ferro",
+                         help="order parameter: the spins, or the staggered field (neel)")
+    measure.add_argument("--boundary", choices=("open", "periodic"), default="open",
+                         help="edges of the snapshots (default: open)")
+    measure.add_argument("--times", type=_time_value, nargs="+", default=None, metavar="T",
+                         help="one time per shot (or one for all), replacing the file's")
+    measure.add_argument("--lattice", choices=("chain", "square", "triangular", "cubic"),
+                         default=None,
+                         help="lattice kind (default: chain, square or cubic by dimension)")
+    measure.add_argument("--lengths-csv", default=None, metavar="LENGTHS.csv",
+                         help="also write the shot-mean lengths (corr_half) as CSV")
+    measure.add_argument("--quiet", action="store_true", help="no summary")
+    measure.set_defaults(handler=_run_measure)
+
+
+def _peak_memory_mb() -> float:
+    import resource
+
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def _run_run(args) -> int:
+    from coarsen._progress import wants_progress
+    from coarsen.dataset import write_lengths_csv
+    from coarsen.simulate import RunInterrupted, run_spec
+    from coarsen.spec import load_spec
+
+    spec = load_spec(args.spec)
+
+    def notify(message):
+        if not args.quiet:
+            print(f"{_PROG} run: {message}", file=sys.stderr)
+
+    try:
+        result = run_spec(spec, args.output, threads=args.threads, resume=args.resume,
+                          checkpoint_every=args.checkpoint_every,
+                          progress=wants_progress(args.quiet), notify=notify)
+    except RunInterrupted as stop:
+        print(f"{_PROG} run: interrupted at sweep {stop.clock}; the state is saved in "
+              f"{str(stop.checkpoint)!r}. Resume with: {_PROG} run {args.spec} -o "
+              f"{args.output} --resume", file=sys.stderr)
+        return 1
+    if args.lengths_csv:
+        write_lengths_csv(result.dataset, args.lengths_csv)
+    if not args.quiet:
+        ds = result.dataset
+        busy = result.dynamics_seconds + result.measuring_seconds
+        share = 100.0 * result.measuring_seconds / busy if busy > 0 else 0.0
+        print(f"wrote {args.output}: {ds.attrs['lattice']}, {spec.rule} {spec.acceptance} "
+              f"{spec.update}, {spec.replicas} replicas, {ds.sizes['time']} times up to "
+              f"{spec.final_time} sweeps; dynamics {result.dynamics_seconds:.1f} s, "
+              f"measurements {result.measuring_seconds:.1f} s ({share:.0f}%), "
+              f"peak memory {_peak_memory_mb():.0f} MB")
+    return 0
+
+
+def _run_measure(args) -> int:
+    from coarsen.dataset import write_dataset, write_lengths_csv
+    from coarsen.labdata import load_snapshots, measure_snapshots
+
+    output = os.path.abspath(args.output)
+    if not os.path.isdir(os.path.dirname(output)):
+        raise ValueError(f"output {args.output!r}: the directory does not exist")
+    snapshots = load_snapshots(args.snapshots, boundary=args.boundary, times=args.times,
+                               kind=args.lattice)
+    ds = measure_snapshots(snapshots, order=args.order)
+    write_dataset(ds, args.output)
+    if args.lengths_csv:
+        write_lengths_csv(ds, args.lengths_csv)
+    if not args.quiet:
+        print(f"wrote {args.output}: {ds.attrs['lattice']}, {len(snapshots.times)} shots at "
+              f"{ds.sizes['time']} time{'s' if ds.sizes['time'] != 1 else ''}")
+    return 0
+
+
 def _run_bench(args) -> int:
     from coarsen.bench import write_benchmark
 
@@ -87,13 +222,16 @@ def build_parser() -> argparse.ArgumentParser:
     """
     parser = _Parser(
         prog=_PROG,
-        description="Kinetic Ising coarsening: Glauber and Kawasaki dynamics on lattices.",
+        description=("Kinetic Ising coarsening: simulate Glauber and Kawasaki dynamics, "
+                     "measure simulated and lab configurations alike."),
     )
     parser.add_argument("--version", action="version",
                         version=f"{_PROG} {coarsen.__version__}")
     subcommands = parser.add_subparsers(title="commands", dest="command", metavar="COMMAND",
                                         parser_class=_Parser)
     subcommands.required = True
+    _add_run(subcommands)
+    _add_measure(subcommands)
     _add_bench(subcommands)
     return parser
 
@@ -137,6 +275,11 @@ def main(argv: list[str] | None = None) -> int:
         return args.handler(args)
     except (ValueError, TypeError) as error:
         print(f"{_PROG} {args.command}: {_one_line(error)}", file=sys.stderr)
+        return 2
+    except (FileNotFoundError, PermissionError, IsADirectoryError, NotADirectoryError) as error:
+        where = f"{error.filename!r}: " if error.filename else ""
+        print(f"{_PROG} {args.command}: {where}{error.strerror or _one_line(error)}",
+              file=sys.stderr)
         return 2
     except BrokenPipeError:  # the reader went away (``coarsen bench | head``)
         _silence_stdout()
