@@ -25,6 +25,9 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
+# the length estimators, in the order of the ``estimator`` coordinate, are defined with them
+from coarsen.observables.lengths import ESTIMATORS
+
 __all__ = [
     "ESTIMATORS",
     "VARIABLES",
@@ -40,8 +43,6 @@ __all__ = [
     "write_text_atomically",
 ]
 
-#: Length estimators, in the order of the ``estimator`` coordinate.
-ESTIMATORS = ("corr_zero", "corr_half", "sk_moment", "wall")
 
 _SITE_DIMS = ("x", "y", "z")
 

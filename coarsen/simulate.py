@@ -228,7 +228,7 @@ def simulate(spec, *, threads: int | None = None, checkpoint=None,
                 start = time.perf_counter()
                 temperature = float(spec.temperature.at([target])[0])
                 measured = measure(state.spins, lattice, grid, temperature=temperature,
-                                   J=spec.J, h=spec.h, order=spec.order,
+                                   J=spec.J, h=spec.h, order=spec.order, threads=threads,
                                    equilibrium_energy=_reference_energy(spec, temperature))
                 state.series.store(state.next_index, measured)
                 if target in snapshot_slot:

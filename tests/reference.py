@@ -728,3 +728,69 @@ def domains_bfs(spins_one, kind: str, size, periodic: bool = True, mask=None) ->
                     labels[other] = current
                     queue.append(other)
     return labels.reshape(size[::-1])
+
+
+# Domains with well-kept libraries: scipy.ndimage.label once per sign (structuring element
+# from OFFSETS, no wrapping), then every bond of OFFSETS, wrapped on a torus, joins the two
+# labels it touches (scipy.sparse.csgraph.connected_components). This was the package's own
+# labelling before the union-find kernel of coarsen/kernels/domains.py replaced it.
+__all__ += ["domains_scipy"]
+
+
+def domains_scipy(spins_one, kind: str, size, periodic: bool = True, mask=None) -> np.ndarray:
+    """Domains of one configuration by scipy labelling plus a merge over all bonds.
+
+    Same conventions as :func:`domains_bfs`: labels 1..n in the shape size[::-1], 0 for
+    masked sites and sites of value 0.
+    """
+    from scipy import ndimage, sparse
+    from scipy.sparse import csgraph
+
+    size = tuple(size)
+    d = len(size)
+    shape = size[::-1]
+    s = np.asarray(spins_one).reshape(shape)
+    present = np.ones(shape, dtype=bool) if mask is None else np.asarray(mask, dtype=bool)
+    structure = np.zeros((3,) * d, dtype=bool)
+    structure[(1,) * d] = True
+    for off in OFFSETS[kind]:
+        structure[tuple(1 + c for c in off[:d][::-1])] = True
+    labels = np.zeros(shape, dtype=np.int64)
+    n = 0
+    for sign_is_up in (True, False):
+        sites = ((s > 0) if sign_is_up else (s < 0)) & present
+        part, count = ndimage.label(sites, structure=structure)
+        labels[sites] = part[sites] + n
+        n += count
+    if n == 0:
+        return labels
+    ends_a, ends_b = [], []
+    for off in OFFSETS[kind]:
+        step = off[:d][::-1]  # array axes (z, y, x)
+        moved = np.roll(labels, shift=tuple(-c for c in step), axis=tuple(range(d)))
+        valid = np.ones(shape, dtype=bool)
+        if not periodic:  # drop bonds that cross an open edge
+            for axis, c in enumerate(step):
+                index = [slice(None)] * d
+                if c > 0:
+                    index[axis] = slice(shape[axis] - c, None)
+                elif c < 0:
+                    index[axis] = slice(0, -c)
+                if c:
+                    valid[tuple(index)] = False
+        same = valid & (labels > 0) & (moved > 0) & (s * np.roll(s, tuple(-c for c in step),
+                                                                axis=tuple(range(d))) > 0)
+        ends_a.append(labels[same] - 1)
+        ends_b.append(moved[same] - 1)
+    a, b = np.concatenate(ends_a), np.concatenate(ends_b)
+    graph = sparse.coo_matrix((np.ones(len(a)), (a, b)), shape=(n, n))
+    _, component = csgraph.connected_components(graph, directed=False)
+    # number the components 1.. in the order of their first site
+    flat = labels.ravel()
+    merged = np.zeros_like(flat)
+    merged[flat > 0] = component[flat[flat > 0] - 1] + 1
+    _, first = np.unique(merged[merged > 0], return_index=True)
+    order = np.argsort(first)
+    renumber = np.zeros(merged.max() + 1, dtype=np.int64)
+    renumber[np.unique(merged[merged > 0])[order]] = np.arange(1, len(order) + 1)
+    return renumber[merged].reshape(shape)

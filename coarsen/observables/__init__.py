@@ -5,9 +5,14 @@ shots) and returns one value, or one row, per configuration. :func:`measure` is 
 the simulation driver and the lab-data reader make; it needs a :class:`MeasurementGrid`,
 built once per lattice and mask, which holds the |k| shells and distance bins.
 
-Modules: :mod:`~coarsen.observables.structure` (S(k), C(r), radial averages),
+Modules: :mod:`~coarsen.observables.geometry` (|k| and |d| of the grids),
+:mod:`~coarsen.observables.grid` (:class:`MeasurementGrid`: shells and bins),
+:mod:`~coarsen.observables.structure` (S(k), C(r), radial averages),
 :mod:`~coarsen.observables.lengths` (the four length estimators),
-:mod:`~coarsen.observables.domains` (cluster labelling), :mod:`~coarsen.observables.measure`.
+:mod:`~coarsen.observables.domains` (cluster labelling) and
+:mod:`~coarsen.observables._measurement` (:func:`measure`, :class:`Measurements`). Every
+function that measures a stack takes ``threads`` (default ``numba.get_num_threads()``) and
+gives bitwise the same results for any value.
 """
 
 from coarsen.observables.domains import (
@@ -23,17 +28,16 @@ from coarsen.observables.lengths import (
     moment_length,
     wall_length,
 )
-from coarsen.observables.measure import ORDERS, Measurements, bond_sums, measure
+from coarsen.observables._checks import PRECISIONS
+from coarsen.observables._measurement import ORDERS, Measurements, bond_sums, measure
+from coarsen.observables.geometry import displacement_length, wavevector_magnitude
+from coarsen.observables.grid import MeasurementGrid
 from coarsen.observables.structure import (
-    PRECISIONS,
-    MeasurementGrid,
     correlation,
-    displacement_length,
     radial_correlation,
     radial_structure_factor,
     structure_and_correlation,
     structure_factor,
-    wavevector_magnitude,
 )
 
 __all__ = [

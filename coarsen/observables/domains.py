@@ -5,10 +5,14 @@ sites of the same sign: the bonds of the lattice kind (on the triangular lattice
 ``(1, 1)`` as well), across periodic edges too, so a domain that wraps around the torus is one
 domain. Open edges do not wrap. Masked (missing) sites belong to no domain and break paths.
 
-Labelling uses ``scipy.ndimage.label`` once per sign with the lattice's connectivity as the
-structuring element; on a torus the labels that meet across each periodic edge are then
-merged with ``scipy.sparse.csgraph.connected_components``. Areas are summed from runs of
-equal spins along x (or, with many small domains, from a histogram of the labels).
+Labelling is a union-find scan over runs of equal signs (``coarsen/kernels/domains.py``)
+that labels both signs and merges across the periodic edges in one pass. It replaces
+``scipy.ndimage.label`` (once per sign) followed by a merge of the labels that meet across
+each periodic edge with ``scipy.sparse.csgraph``, which the tests keep as a reference
+(``tests/reference.domains_scipy``) beside the breadth-first search. On one core, for a
+1024**2 torus quenched from a random state, the scipy path took 24 ms one sweep after the
+quench (~34,000 domains) and 7 ms after 1000 sweeps; the kernel takes 8.5 ms and 0.8 ms.
+Replicas are labelled side by side on ``threads`` threads.
 """
 
 from __future__ import annotations
@@ -16,11 +20,11 @@ from __future__ import annotations
 from functools import lru_cache
 
 import numpy as np
-from scipy import ndimage, sparse
-from scipy.sparse import csgraph
 
+from coarsen.kernels.domains import domain_areas, domain_numbers
 from coarsen.lattice import Lattice
-from coarsen.observables.structure import check_mask, check_stack
+from coarsen.observables._checks import check_mask, check_stack
+from coarsen.observables._parallel import Workspace, check_threads, for_each
 
 __all__ = [
     "domain_count",
@@ -31,120 +35,56 @@ __all__ = [
 
 
 @lru_cache(maxsize=16)
-def _connectivity(lattice: Lattice) -> np.ndarray:
-    """The structuring element: True at the centre and at each neighbour offset."""
-    d = lattice.dimension
-    structure = np.zeros((3,) * d, dtype=bool)
-    structure[(1,) * d] = True
-    for offset in lattice.offsets:  # (x, y, z) order; array axes are (z, y, x)
-        structure[tuple(1 + c for c in offset[::-1])] = True
-    structure.setflags(write=False)
-    return structure
+def _geometry(lattice: Lattice):
+    """(dims (n_x, n_y, n_z), forward offsets (n, 3), periodic) as the kernels take them."""
+    dims = np.ones(3, dtype=np.int64)
+    dims[: lattice.dimension] = lattice.size
+    offsets = np.zeros((len(lattice.forward_offsets), 3), dtype=np.int64)
+    for row, offset in enumerate(lattice.forward_offsets):
+        offsets[row, : lattice.dimension] = offset
+    dims.setflags(write=False)
+    offsets.setflags(write=False)
+    return dims, offsets, bool(lattice.periodic)
 
 
-@lru_cache(maxsize=16)
-def _wrapping_bonds(lattice: Lattice) -> tuple[np.ndarray, np.ndarray]:
-    """Flat indices (a, b) of the bonds that cross a periodic edge (each at least once)."""
-    if not lattice.periodic:
-        empty = np.zeros(0, dtype=np.intp)
-        return empty, empty
-    size = np.array(lattice.size)
-    first, second = [], []
-    for offset in lattice.forward_offsets:
-        for axis, step in enumerate(offset):
-            if step == 0:
-                continue
-            # the slab x_axis = L_axis - 1: every site there crosses the edge along this bond
-            slab_size = size.copy()
-            slab_size[axis] = 1
-            coords = np.indices(tuple(slab_size)).reshape(len(size), -1).T
-            coords[:, axis] = size[axis] - 1
-            target = (coords + np.array(offset)) % size
-            first.append(lattice.flat_index(coords))
-            second.append(lattice.flat_index(target))
-    a = np.concatenate(first).astype(np.intp)
-    b = np.concatenate(second).astype(np.intp)
-    a.setflags(write=False)
-    b.setflags(write=False)
-    return a, b
+def _scratch(lattice: Lattice, workspace: Workspace, with_area: bool = True):
+    """The kernels' scratch arrays: first run of each row, and per run (at most one per
+    site) start, stop, sign, parent (and area). Only the entries in use are ever touched."""
+    n = lattice.n_sites
+    index = np.int32 if n < 2**31 - 1 else np.int64
+    names = ("run_start", "run_stop", "run_sign", "parent", "area")[: 5 if with_area else 4]
+    dtypes = (index, index, np.int8, index, index)
+    return [workspace.array("row_first", (n // lattice.size[0] + 1,), np.int64)] + [
+        workspace.array(name, (n,), dtype) for name, dtype in zip(names, dtypes)]
 
 
-def _label_one(values: np.ndarray, lattice: Lattice, mask):
-    """Label one configuration: per-sign labels, their merged component ids and areas.
-
-    Returns (up labels, down labels, n_up, component of each per-sign label (n_up + n_down,),
-    number of domains, area of each domain).
-    """
-    structure = _connectivity(lattice)
-    up = values > 0
-    down = values < 0
+def signs_of(values: np.ndarray, mask) -> np.ndarray:
+    """int8 +1/-1 (0 for no domain: masked sites and zero values), C-contiguous."""
+    signs = np.sign(values).astype(np.int8)
     if mask is not None:
-        up &= mask
-        down &= mask
-    up_labels, n_up = ndimage.label(up, structure=structure)
-    down_labels, n_down = ndimage.label(down, structure=structure)
-    n_labels = n_up + n_down
-    a, b = _wrapping_bonds(lattice)
-    if len(a) and n_labels:
-        nodes = np.concatenate(([-1], np.arange(n_up)))
-        down_nodes = np.concatenate(([-1], np.arange(n_up, n_labels)))
-        flat_up, flat_down = up_labels.ravel(), down_labels.ravel()
-        ends = []
-        for flat, lut in ((flat_up, nodes), (flat_down, down_nodes)):
-            la, lb = lut[flat[a]], lut[flat[b]]
-            keep = (la >= 0) & (lb >= 0) & (la != lb)
-            ends.append((la[keep], lb[keep]))
-        i = np.concatenate([e[0] for e in ends])
-        j = np.concatenate([e[1] for e in ends])
-        if len(i):
-            graph = sparse.coo_matrix((np.ones(len(i), dtype=np.int8), (i, j)),
-                                      shape=(n_labels, n_labels)).tocsr()
-            n_domains, component = csgraph.connected_components(graph, directed=False)
-        else:
-            n_domains, component = n_labels, np.arange(n_labels)
-    else:
-        n_domains, component = n_labels, np.arange(n_labels)
-    label_areas = _label_areas(values, up_labels, down_labels, n_up, n_down, mask)
-    areas = np.bincount(component, weights=label_areas, minlength=n_domains).astype(np.int64)
-    return up_labels, down_labels, n_up, component, n_domains, areas
+        signs *= mask
+    return signs
 
 
-def _label_areas(values, up_labels, down_labels, n_up: int, n_down: int, mask) -> np.ndarray:
-    """Sites of each per-sign label (up labels first), counted by runs along x.
-
-    A run is a stretch of equal values within one row; it lies in one domain, so the areas are
-    sums of run lengths. With large domains this reads far fewer entries than a histogram of
-    the labels (whose long stretches of one label also serialise the counting); with small
-    domains (more than one label per 64 sites) the histogram is used.
-    """
-    n_labels = n_up + n_down
-    if n_labels * 64 > values.size:  # small domains: many runs; a histogram is cheaper
-        return np.concatenate((np.bincount(up_labels.ravel(), minlength=n_up + 1)[1:],
-                               np.bincount(down_labels.ravel(), minlength=n_down + 1)[1:]))
-    flat = values.ravel()
-    if mask is not None:
-        flat = np.where(mask.ravel(), flat, 0)
-    n = flat.size
-    starts = np.empty(n, dtype=bool)
-    starts[0] = True
-    np.not_equal(flat[1:], flat[:-1], out=starts[1:])
-    starts[:: values.shape[-1]] = True  # every row starts a run
-    first = np.flatnonzero(starts)
-    lengths = np.diff(first, append=n)
-    sign = flat[first]
-    node = np.where(sign > 0, up_labels.ravel()[first] - 1,
-                    np.where(sign < 0, down_labels.ravel()[first] - 1 + n_up, -1))
-    use = node >= 0
-    return np.bincount(node[use], weights=lengths[use], minlength=n_labels)
+def count_and_largest_into(signs: np.ndarray, lattice: Lattice, n_present: int, count,
+                           largest, workspace: Workspace) -> None:
+    """Domain count and largest area fraction of each configuration of ``signs`` (int8 with
+    0 for no domain, shape (R, *lattice.shape)), written into ``count[r]``, ``largest[r]``."""
+    dims, offsets, periodic = _geometry(lattice)
+    scratch = _scratch(lattice, workspace)
+    for rep in range(signs.shape[0]):
+        n, area = domain_areas(signs[rep].reshape(-1), dims, offsets, periodic, *scratch)
+        count[rep] = n
+        largest[rep] = area / n_present if n else 0.0
 
 
-def _check(spins, lattice, mask):
+def _check(spins, lattice, mask, threads):
     check_stack(spins, lattice)
-    return check_mask(mask, lattice)
+    return check_mask(mask, lattice), check_threads(threads)
 
 
-def domain_labels(spins: np.ndarray, lattice: Lattice, mask: np.ndarray | None = None,
-                  ) -> tuple[np.ndarray, np.ndarray]:
+def domain_labels(spins: np.ndarray, lattice: Lattice, mask: np.ndarray | None = None, *,
+                  threads: int | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Label the domains of each configuration.
 
     Parameters
@@ -155,31 +95,37 @@ def domain_labels(spins: np.ndarray, lattice: Lattice, mask: np.ndarray | None =
     lattice : Lattice
     mask : ndarray of shape lattice.shape and dtype bool, optional
         True where a site is present.
+    threads : int, optional
+        Replicas labelled side by side; default ``numba.get_num_threads()``. The results do
+        not depend on it.
 
     Returns
     -------
     labels : ndarray of shape (R, *lattice.shape), int32
-        ``1 .. n`` for the n domains of each replica, 0 at masked sites. The numbering has
-        no meaning beyond identity: ``labels[r] == labels[r][site]`` is the domain holding
+        ``1 .. n`` for the n domains of each replica, 0 at masked sites, numbered in the
+        order of their first site in memory (C order). The numbering has no meaning beyond
+        identity: ``labels[r] == labels[r][site]`` is the domain holding
         ``site``.
     counts : ndarray of shape (R,), int64
         Number of domains n of each replica.
     """
-    mask = _check(spins, lattice, mask)
+    mask, threads = _check(spins, lattice, mask, threads)
     labels = np.zeros(spins.shape, dtype=np.int32)
     counts = np.zeros(spins.shape[0], dtype=np.int64)
-    for rep in range(spins.shape[0]):
-        up_labels, down_labels, n_up, component, n_domains, _ = _label_one(spins[rep], lattice,
-                                                                           mask)
-        number = np.concatenate(([0], component + 1)).astype(np.int32)
-        down_number = np.concatenate(([0], number[1 + n_up:]))
-        labels[rep] = number[: n_up + 1][up_labels] + down_number[down_labels]
-        counts[rep] = n_domains
+    dims, offsets, periodic = _geometry(lattice)
+
+    def one(rep, workspace):
+        signs = signs_of(spins[rep], mask).reshape(-1)
+        counts[rep] = domain_numbers(signs, dims, offsets, periodic,
+                                     *_scratch(lattice, workspace, False),
+                                     labels[rep].reshape(-1))
+
+    for_each(one, range(spins.shape[0]), threads, lattice.n_sites)
     return labels, counts
 
 
-def domain_statistics(spins: np.ndarray, lattice: Lattice, mask: np.ndarray | None = None,
-                      ) -> tuple[np.ndarray, np.ndarray]:
+def domain_statistics(spins: np.ndarray, lattice: Lattice, mask: np.ndarray | None = None, *,
+                      threads: int | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Number of domains and the largest domain's share of the present sites.
 
     Parameters
@@ -187,6 +133,8 @@ def domain_statistics(spins: np.ndarray, lattice: Lattice, mask: np.ndarray | No
     spins : ndarray of shape (R, *lattice.shape)
     lattice : Lattice
     mask : ndarray of shape lattice.shape and dtype bool, optional
+    threads : int, optional
+        As for :func:`domain_labels`.
 
     Returns
     -------
@@ -195,19 +143,17 @@ def domain_statistics(spins: np.ndarray, lattice: Lattice, mask: np.ndarray | No
     largest : ndarray of shape (R,), float64
         Area (sites) of the largest domain divided by the number of present sites.
     """
-    mask = _check(spins, lattice, mask)
+    mask, threads = _check(spins, lattice, mask, threads)
     n_present = lattice.n_sites if mask is None else int(np.count_nonzero(mask))
-    return count_and_largest(spins, lattice, mask, n_present)
-
-
-def count_and_largest(spins, lattice: Lattice, mask, n_present: int):
-    """:func:`domain_statistics` without the input checks (for callers that made them)."""
     count = np.zeros(spins.shape[0], dtype=np.int64)
     largest = np.zeros(spins.shape[0], dtype=np.float64)
-    for rep in range(spins.shape[0]):
-        *_, n_domains, areas = _label_one(spins[rep], lattice, mask)
-        count[rep] = n_domains
-        largest[rep] = areas.max() / n_present if n_domains else 0.0
+
+    def one(rep, workspace):
+        part = slice(rep, rep + 1)
+        count_and_largest_into(signs_of(spins[part], mask), lattice, n_present, count[part],
+                               largest[part], workspace)
+
+    for_each(one, range(spins.shape[0]), threads, lattice.n_sites)
     return count, largest
 
 

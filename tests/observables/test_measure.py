@@ -189,3 +189,24 @@ def test_bad_input_names_the_parameter():
         bad = spins.copy()
         bad[0, 1, 1] = 0
         call(s=bad, g=MeasurementGrid(lattice, masked))
+
+
+def test_thread_count_does_not_change_measurements():
+    """measure(threads=1, 2, 3) on lattices large enough to be split among threads (one or
+    two replicas per piece of work), and a masked grid: the same bits."""
+    rng = np.random.default_rng(35)
+    for lattice, mask in ((Lattice("square", (192, 160)), None),
+                          (Lattice("square", (200, 180), "open"), None),
+                          (Lattice("triangular", (192, 192)),
+                           rng.random((192, 192)) < 0.9)):
+        grid = MeasurementGrid(lattice, mask)
+        spins = random_spins(rng, 5, lattice, up_fraction=0.7)
+        one = measure(spins, lattice, grid, temperature=1.0, threads=1)
+        for threads in (2, 3):
+            many = measure(spins, lattice, grid, temperature=1.0, threads=threads)
+            for name in ("energy", "magnetization", "structure_factor", "correlation",
+                         "length", "domain_count", "largest_domain"):
+                np.testing.assert_array_equal(getattr(one, name), getattr(many, name),
+                                              err_msg=f"{lattice.describe()} {name}")
+    with pytest.raises(ValueError, match="threads"):
+        measure(spins, lattice, grid, temperature=1.0, threads=-1)
