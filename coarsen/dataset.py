@@ -213,8 +213,18 @@ def _fsync_directory(directory: Path) -> None:
 
 
 def _temporary_beside(path: Path, suffix: str = ".tmp") -> Path:
+    """An empty temporary file in the directory of ``path``, with the usual permissions.
+
+    ``mkstemp`` creates files readable by the owner only; the renamed result should get the
+    permissions any new file gets (0666 less the umask).
+    """
     handle, name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix, dir=path.parent)
-    os.close(handle)
+    umask = os.umask(0)
+    os.umask(umask)
+    try:
+        os.fchmod(handle, 0o666 & ~umask)
+    finally:
+        os.close(handle)
     return Path(name)
 
 

@@ -132,3 +132,13 @@ def test_series_mean_and_error_ignore_missing_shots():
     series = MeasurementSeries(3, 2, 4, 5)
     assert np.isnan(series.arrays["energy"]).all()
     assert (series.arrays["domain_count"] == -1).all()
+
+
+def test_written_files_get_the_usual_permissions(tmp_path):
+    import os
+
+    ds, _ = _dataset(np.random.default_rng(5))
+    path = write_dataset(ds, tmp_path / "a.nc")
+    umask = os.umask(0)
+    os.umask(umask)
+    assert path.stat().st_mode & 0o777 == 0o666 & ~umask
