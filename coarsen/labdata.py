@@ -205,14 +205,16 @@ def load_snapshots(path, *, boundary: str = "open", times=None, kind: str | None
                         source_file=str(path))
 
 
-def measure_snapshots(snapshots: LabSnapshots, *, order: str = "ferro", J: float = 1.0,
-                      ) -> xr.Dataset:
+def measure_snapshots(snapshots: LabSnapshots, *, order: str = "ferro",
+                      J: float | None = None) -> xr.Dataset:
     """Measure lab snapshots with the observables of a run, one group per time.
 
     The shots of each time are the replicas; where times have different numbers of shots,
-    the missing replicas are NaN. Energies use ``J`` (default 1) and no field; the ``wall``
-    length uses the ground-state energy as the reference (lab data has no temperature), and
-    ``temperature`` and ``field`` are NaN.
+    the missing replicas are NaN. Energies use the coupling ``J`` and no field; by default
+    J = 1 for ``order="ferro"`` and J = -1 for ``order="neel"`` (checkerboard order is the
+    ground state of the antiferromagnet), so the energy measures broken bonds of the order
+    being studied. The ``wall`` length uses that ground-state energy as the reference (lab
+    data has no temperature), and ``temperature`` and ``field`` are NaN.
 
     Returns
     -------
@@ -220,6 +222,8 @@ def measure_snapshots(snapshots: LabSnapshots, *, order: str = "ferro", J: float
         The variables of a run's dataset, with ``source_file`` in the attrs.
     """
     lattice = snapshots.lattice
+    if J is None:
+        J = -1.0 if order == "neel" else 1.0
     grid = MeasurementGrid(lattice, mask=snapshots.mask)
     group_times, inverse, counts = np.unique(snapshots.times, return_inverse=True,
                                              return_counts=True)

@@ -140,3 +140,21 @@ def test_measure_command(tmp_path, capsys):
     assert main(["measure", str(path), "-o", str(out), "--order", "neel", "--lattice",
                  "triangular"]) == 2
     assert "neel" in capsys.readouterr().err.lower()
+
+
+def test_neel_lab_data_measures_against_the_antiferromagnet(tmp_path):
+    """A checkerboard snapshot with one flipped site: in Neel order it has an
+    excess energy of 2 z |J| / N (the flipped site breaks its z = 4 bonds; e = -J sum / N),
+    and the staggered field has two domains."""
+    n = 16
+    x, y = np.meshgrid(np.arange(n), np.arange(n), indexing="ij")
+    shot = np.where((x + y) % 2 == 0, 1, -1).astype(np.int8)
+    shot[3, 5] *= -1
+    path = tmp_path / "neel.npy"
+    np.save(path, shot[None])
+    ds = measure_snapshots(load_snapshots(path, boundary="periodic"), order="neel")
+    assert ds.attrs["J"] == -1.0
+    excess = ds["energy"].values[0, 0] - (-2.0)
+    assert np.isclose(excess, 2 * 4 / n**2)
+    assert np.isclose(ds["length"].sel(estimator="wall").values[0, 0], n**2 / 8)
+    assert ds["domain_count"].values[0, 0] == 2  # the staggered field: a background and a dot
