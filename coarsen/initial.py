@@ -16,13 +16,17 @@ States
     magnetization never changes and should be the one asked for, and to False for Glauber.
 ``up``
     Every spin +1.
+``disk``, ``square``, ``stripe``, ``zigzag``
+    A seeded domain of the down phase in an up background (shapes and parameters in
+    :mod:`coarsen.seeded`); the same configuration in every replica.
+``file``
+    Spins read from an array file (:func:`coarsen.seeded.read_configuration`).
 
 With ``order = "neel"`` every state is multiplied by the lattice's staggering
 ``(-1)**sublattice``, so ``up`` gives the Néel state and m is the staggered magnetization.
 
 Adding a state is one function: decorate a builder with ``@_builds("name")``
-(signature of :data:`STATE_BUILDERS`). The seeded states of the design (disk, stripe, zigzag,
-file) come in a later version.
+(signature of :data:`STATE_BUILDERS`).
 """
 
 from __future__ import annotations
@@ -43,6 +47,7 @@ from coarsen._validation import (
 from coarsen.engine import RULES
 from coarsen.lattice import Lattice
 from coarsen.rng import random_words, seed_sequence, spawn_streams
+from coarsen.seeded import SEEDED_PARAMETERS, read_configuration, seed_sites
 
 __all__ = [
     "CONSERVED_RULES",
@@ -63,7 +68,7 @@ CONSERVED_RULES: tuple[str, ...] = ("kawasaki", "kawasaki-nonlocal")
 ORDERS: tuple[str, ...] = ("ferro", "neel")
 
 #: States of the design that this version does not build yet.
-PLANNED_STATES: tuple[str, ...] = ("disk", "stripe", "zigzag", "file")
+PLANNED_STATES: tuple[str, ...] = ()
 
 #: Spawn-key entry that separates the initial-state streams from the dynamics streams.
 INITIAL_SPAWN_KEY = 2**32 - 1
@@ -114,6 +119,9 @@ class InitialState:
         For ``random``: True places exactly ``floor(N (1 + m) / 2 + 1/2)`` up spins, False
         draws every spin independently; None chooses exact for the conserved rules and
         independent spins for Glauber (:meth:`is_exact`).
+    parameters : tuple of (str, value) pairs, default: ()
+        For the seeded states and ``file``: their parameters (:data:`coarsen.seeded.
+        SEEDED_PARAMETERS`), e.g. ``(("radius", 20.0),)``.
 
     Raises
     ------
@@ -124,14 +132,20 @@ class InitialState:
     state: str = "random"
     magnetization: float = 0.0
     exact: bool | None = None
+    parameters: tuple = ()
 
     def __post_init__(self):
         check_state(self.state)
+        object.__setattr__(self, "parameters", tuple((str(k), v) for k, v in self.parameters))
         m = check_number(self.magnetization, "initial magnetization", minimum=-1.0,
                          maximum=1.0)
         object.__setattr__(self, "magnetization", m)
         if self.exact is not None:
             object.__setattr__(self, "exact", check_bool(self.exact, "initial exact"))
+
+    def parameter_dict(self) -> dict:
+        """The parameters as a dict."""
+        return dict(self.parameters)
 
     def is_exact(self, rule: str = "glauber") -> bool:
         """Whether random states are built with the exact number of up spins under ``rule``."""
@@ -216,6 +230,21 @@ def _up_state(initial: InitialState, lattice: Lattice, stream: np.ndarray,
     return np.ones(lattice.shape, dtype=np.int8)
 
 
+def _seeded(name):
+    def build(initial: InitialState, lattice: Lattice, stream: np.ndarray,
+              exact: bool) -> np.ndarray:
+        down = seed_sites(name, lattice, initial.parameter_dict())
+        return np.where(down, -1, 1).astype(np.int8)
+    build.__doc__ = f"A {name} of down spins in an up background (coarsen.seeded)."
+    return build
+
+
+for _name in SEEDED_PARAMETERS:
+    if _name != "file":
+        STATE_BUILDERS[_name] = _seeded(_name)
+STATE_BUILDERS["file"] = None  # read whole, for all replicas at once, in initial_spins
+
+
 def initial_spins(initial: InitialState, lattice: Lattice, replicas: int, seed, *,
                   rule: str = "glauber", order: str = "ferro") -> np.ndarray:
     """The starting configurations of an ensemble.
@@ -261,6 +290,11 @@ def initial_spins(initial: InitialState, lattice: Lattice, replicas: int, seed, 
     check_choice(rule, RULES, "rule", what="rule")
     check_choice(order, ORDERS, "order", what="order")
     staggering = lattice.staggering if order == "neel" else None
+    if initial.state == "file":
+        spins = read_configuration(initial.parameter_dict()["path"], lattice, replicas)
+        if staggering is not None:
+            spins *= staggering
+        return spins
     streams = initial_streams(seed, replicas)
     builder = STATE_BUILDERS[initial.state]
     exact = initial.is_exact(rule)

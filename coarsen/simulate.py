@@ -12,6 +12,7 @@ does a run with a different number of threads.
 
 from __future__ import annotations
 
+import json
 import signal
 import threading
 import time
@@ -267,6 +268,8 @@ def _dataset(spec, grid: MeasurementGrid, state: RunState) -> xr.Dataset:
         "replicas": int(spec.replicas),
         "initial_state": spec.initial.state,
     }
+    if spec.initial.parameters:
+        attrs["initial_parameters"] = json.dumps(spec.initial.parameter_dict())
     if spec.source is not None:
         attrs["spec_file"] = str(spec.source)
     if spec.equilibrium_energy is not None:

@@ -12,7 +12,10 @@ is reproducible only if its seed is written down, so the spec must say it).
 
 Defaults: ``lattice.boundary = "periodic"``, ``model.J = 1.0``, ``model.h = 0.0``,
 ``dynamics.acceptance = "heat-bath"``, ``dynamics.update = "random"``,
-``initial.state = "random"``, ``initial.magnetization = 0.0``, ``initial.exact`` exact for the
+``initial.state = "random"`` (or ``up``, or a seeded state of :mod:`coarsen.seeded` with its
+own keys: ``disk``/``radius``, ``square``/``side``, ``stripe``/``width``,
+``zigzag``/``amplitude``+``period``, optional ``centre``; ``file``/``path``, relative to the
+spec file), ``initial.magnetization = 0.0``, ``initial.exact`` exact for the
 conserved rules and not for Glauber (see :mod:`coarsen.initial`), ``measure.times.spacing =
 "log"``, ``measure.order = "ferro"``, ``measure.snapshots = 0``, no
 ``measure.equilibrium_energy``, ``ensemble.replicas = 8``.
@@ -41,6 +44,7 @@ import math
 import os
 import re
 import tomllib
+from pathlib import Path
 
 import numpy as np
 
@@ -57,6 +61,7 @@ from coarsen.engine import ACCEPTANCES, RULES, UPDATES, check_dynamics
 from coarsen.initial import ORDERS, InitialState, check_state
 from coarsen.lattice import BOUNDARIES, LATTICE_KINDS, Lattice
 from coarsen.schedule import Schedule, constant, from_points
+from coarsen.seeded import SEEDED_PARAMETERS, read_configuration, seed_centre, seed_sites
 
 __all__ = [
     "Spec",
@@ -75,7 +80,8 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "model": ("J", "h"),
     "dynamics": ("rule", "acceptance", "update"),
     "temperature": ("value", "relative", "points", "relative_points"),
-    "initial": ("state", "magnetization", "exact"),
+    "initial": ("state", "magnetization", "exact", "radius", "side", "width", "amplitude",
+                "period", "centre", "path"),
     "measure": ("times", "order", "snapshots", "equilibrium_energy"),
     "ensemble": ("replicas", "seed"),
 }
@@ -397,17 +403,40 @@ def _temperature(table: dict, lattice: Lattice, J: float) -> Schedule:
     return points
 
 
-def _initial(table: dict) -> InitialState:
+def _initial(table: dict, lattice: Lattice, source) -> InitialState:
     state = check_state(table.get("state", "random"), "initial.state")
-    for key in ("magnetization", "exact"):
-        if key in table and state != "random":
-            _fail(f"{table[key]!r} given, but {key} applies to state 'random' only, not "
-                  f"{state!r}; remove it",
-                  f"initial.{key}", table[key])
+    own = {"random": ("magnetization", "exact"), "up": ()}
+    own.update({name: required + optional
+                for name, (required, optional) in SEEDED_PARAMETERS.items()})
+    for key, value in table.items():
+        if key != "state" and key not in own[state]:
+            users = [name for name, keys in own.items() if key in keys]
+            states = f"state{'s' if len(users) > 1 else ''} {' or '.join(map(repr, users))}"
+            _fail(f"{value!r} given, but {key} applies to {states} only, not {state!r}; "
+                  "remove it", f"initial.{key}", value)
     m = check_number(table.get("magnetization", 0.0), "initial.magnetization", minimum=-1.0,
                      maximum=1.0, what="magnetization")
     exact = check_bool(table["exact"], "initial.exact") if "exact" in table else None
-    return InitialState(state, m, exact)
+    parameters = ()
+    if state in SEEDED_PARAMETERS:
+        required, optional = SEEDED_PARAMETERS[state]
+        for key in required:
+            _required(table, "initial", key, f"{key} = ...")
+        values = {key: table[key] for key in required + optional if key in table}
+        if state == "file":
+            if not isinstance(values["path"], str):
+                _fail(f"{values['path']!r} is not a file path (a string)", "initial.path",
+                      values["path"], type_error=True)
+            path = Path(values["path"]).expanduser()
+            if not path.is_absolute() and source is not None:
+                path = Path(source).resolve().parent / path
+            values["path"] = str(path)  # read and checked once the replicas are known
+        else:
+            if "centre" in values:
+                values["centre"] = tuple(seed_centre(lattice, values["centre"]).tolist())
+            seed_sites(state, lattice, values)  # validates the parameters
+        parameters = tuple(sorted(values.items()))
+    return InitialState(state, m, exact, parameters)
 
 
 def _round_times(values, key: str) -> tuple[int, ...]:
@@ -475,7 +504,7 @@ def _build(mapping: dict, source, text: str) -> Spec:
     h = check_number(model.get("h", 0.0), "model.h", what="field")
     rule, acceptance, update = _dynamics(tables["dynamics"], lattice)
     temperature = _temperature(tables["temperature"], lattice, J)
-    initial = _initial(tables["initial"])
+    initial = _initial(tables["initial"], lattice, source)
     measure = tables["measure"]
     times = _times(_required(measure, "measure", "times",
                              "times = { start = 1, stop = 1000, count = 25 }"))
@@ -495,6 +524,8 @@ def _build(mapping: dict, source, text: str) -> Spec:
                              minimum=1, what="number of replicas")
     seed = check_integer(_required(ensemble, "ensemble", "seed", "seed = 20261201"),
                          "ensemble.seed", minimum=0, what="seed (whole number)")
+    if initial.state == "file":
+        read_configuration(initial.parameter_dict()["path"], lattice, replicas)
     return Spec(lattice=lattice, J=J, h=h, rule=rule, acceptance=acceptance, update=update,
                 temperature=temperature, initial=initial, times=times, order=order,
                 snapshots=snapshots, snapshot_times=_snapshot_times(times, snapshots),

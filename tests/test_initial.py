@@ -180,10 +180,7 @@ def test_a_new_state_is_one_function(monkeypatch):
 
 
 def test_bad_initial_states():
-    assert set(STATE_BUILDERS) == {"random", "up"}
-    with pytest.raises(ValueError, match="'disk' is not available in this version; choose one "
-                                         "of 'random', 'up'"):
-        InitialState("disk")
+    assert set(STATE_BUILDERS) == {"random", "up", "disk", "square", "stripe", "zigzag", "file"}
     with pytest.raises(ValueError, match=r"'rnadom' is not an initial state.*did you mean "
                                          r"'random'"):
         InitialState("rnadom")

@@ -356,8 +356,10 @@ def test_initial_keys_belong_to_the_random_state():
     error = _error(_edit("[ensemble]", '[initial]\nstate = "up"\nmagnetization = 0.2\n[ensemble]'))
     assert error.key == "initial.magnetization" and "state 'random' only" in str(error)
     error = _error(_edit("[ensemble]", '[initial]\nstate = "zigzag"\n[ensemble]'))
-    assert error.key == "initial.state" and "not available in this version" in str(error)
-    assert error.allowed == ("random", "up")
+    assert error.key == "initial.amplitude" and "missing" in str(error)
+    error = _error(_edit("[ensemble]", '[initial]\nstate = "disk"\nradius = 3\nwidth = 2\n'
+                                       '[ensemble]'))
+    assert error.key == "initial.width" and "state 'stripe' only" in str(error)
     error = _error(_edit("[ensemble]", '[initial]\nstate = "upp"\n[ensemble]'))
     assert "did you mean 'up'?" in str(error)
 
