@@ -63,6 +63,8 @@ VARIABLES: dict[str, tuple[tuple[str, ...], str, str]] = {
     "domain_count": (("replica", "time"), "1", "number of domains (both signs)"),
     "largest_domain": (("replica", "time"), "1",
                        "area of the largest domain as a fraction of the sites"),
+    "seed_area": (("replica", "time"), "sites",
+                  "area of the seeded domain (largest down domain overlapping the seed)"),
     "snapshot": (("snapshot_time", "replica"), "1", "kept spin configurations (+1/-1)"),
 }
 

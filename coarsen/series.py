@@ -25,6 +25,7 @@ SERIES_DIMS: dict[str, tuple[str, ...]] = {
     "length": ("estimator", "replica", "time"),
     "domain_count": ("replica", "time"),
     "largest_domain": ("replica", "time"),
+    "seed_area": ("replica", "time"),
 }
 
 _PER_REPLICA = ("energy", "magnetization", "largest_domain")
@@ -44,12 +45,13 @@ class MeasurementSeries:
 
     Notes
     -----
-    Unmeasured entries hold NaN (``domain_count``: -1). ``store`` takes an
+    Unmeasured entries hold NaN (``domain_count``, ``seed_area``: -1). ``store`` takes an
     :class:`coarsen.observables.Measurements` of up to ``replicas`` replicas; fewer (lab
     data with fewer shots at that time) leave the remaining rows unmeasured.
     """
 
-    def __init__(self, replicas: int, n_times: int, n_k: int, n_r: int):
+    def __init__(self, replicas: int, n_times: int, n_k: int, n_r: int, *,
+                 seeded: bool = False):
         self.replicas, self.n_times, self.n_k, self.n_r = replicas, n_times, n_k, n_r
         nan = np.nan
         self.arrays = {
@@ -63,6 +65,8 @@ class MeasurementSeries:
             "domain_count": np.full((replicas, n_times), -1, dtype=np.int64),
             "largest_domain": np.full((replicas, n_times), nan),
         }
+        if seeded:
+            self.arrays["seed_area"] = np.full((replicas, n_times), -1, dtype=np.int64)
 
     def store(self, index: int, measured) -> None:
         """Put the measurements of time number ``index`` into the arrays."""
@@ -85,7 +89,7 @@ class MeasurementSeries:
         """Rebuild a series from stored arrays (a checkpoint)."""
         replicas, n_times = arrays["energy"].shape
         series = cls(replicas, n_times, arrays["structure_factor"].shape[1],
-                     arrays["correlation"].shape[1])
+                     arrays["correlation"].shape[1], seeded="seed_area" in arrays)
         for name, value in arrays.items():
             if name in series.arrays:
                 target = series.arrays[name]

@@ -28,7 +28,8 @@ from coarsen.dataset import build_dataset, write_dataset
 from coarsen.engine import advance, make_streams
 from coarsen.equilibrium import equilibrium_energy
 from coarsen.initial import initial_spins
-from coarsen.observables import MeasurementGrid, measure
+from coarsen.observables import MeasurementGrid, measure, seed_area
+from coarsen.seeded import SEEDED_PARAMETERS, seed_sites
 from coarsen.series import MeasurementSeries
 
 __all__ = ["RunInterrupted", "RunResult", "run_spec", "simulate"]
@@ -102,10 +103,19 @@ def _fresh_state(spec, lattice, grid: MeasurementGrid) -> RunState:
     spins = initial_spins(spec.initial, lattice, replicas, spec.seed, rule=spec.rule,
                           order=spec.order)
     streams = make_streams(spec.seed, replicas, lattice, spec.rule, spec.update)
-    series = MeasurementSeries(replicas, len(spec.times), len(grid.k), len(grid.r))
+    series = MeasurementSeries(replicas, len(spec.times), len(grid.k), len(grid.r),
+                               seeded=_seed_region(spec) is not None)
     snapshots = np.zeros((len(spec.snapshot_times), replicas, *lattice.shape), dtype=np.int8)
     return RunState(clock=0, next_index=0, spins=spins, streams=streams, series=series,
                     snapshots=snapshots, moves=np.zeros(replicas, dtype=np.int64))
+
+
+def _seed_region(spec):
+    """The sites of a seeded initial state (before any staggering), or None."""
+    state = spec.initial.state
+    if state not in SEEDED_PARAMETERS or state == "file":
+        return None
+    return seed_sites(state, spec.lattice, spec.initial.parameter_dict())
 
 
 def _check_resumed(state: RunState, spec, lattice) -> None:
@@ -192,6 +202,8 @@ def simulate(spec, *, threads: int | None = None, checkpoint=None,
     timing = {"dynamics": 0.0, "measuring": 0.0, "checkpoint": 0.0}
     sweeps_per_call = max(1, int(_ATTEMPTS_PER_CALL // (spec.replicas * lattice.n_sites)))
     snapshot_slot = {t: i for i, t in enumerate(spec.snapshot_times)}
+    seed = _seed_region(spec)
+    staggering = lattice.staggering if spec.order == "neel" else None
     times = spec.times
     bar = progress_bar(progress, total=spec.final_time, initial=state.clock,
                        description=f"{lattice.kind} {spec.rule}")
@@ -232,6 +244,10 @@ def simulate(spec, *, threads: int | None = None, checkpoint=None,
                                    J=spec.J, h=spec.h, order=spec.order, threads=threads,
                                    equilibrium_energy=_reference_energy(spec, temperature))
                 state.series.store(state.next_index, measured)
+                if seed is not None:
+                    field = state.spins if staggering is None else state.spins * staggering
+                    state.series.arrays["seed_area"][:, state.next_index] = seed_area(
+                        field, lattice, seed, threads=threads)
                 if target in snapshot_slot:
                     state.snapshots[snapshot_slot[target]] = state.spins
                 timing["measuring"] += time.perf_counter() - start

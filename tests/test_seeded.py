@@ -155,3 +155,33 @@ def test_initial_state_parameters_are_part_of_the_frozen_spec():
     b = parse_spec(_spec('state = "disk"\nradius = 6.0'))
     assert a.initial == b.initial and hash(a.initial) == hash(b.initial)
     assert InitialState("disk", parameters=(("radius", 6.0),)).parameter_dict() == {"radius": 6.0}
+
+
+def test_seed_area_is_the_largest_down_domain_touching_the_seed():
+    from coarsen.observables import seed_area
+
+    lattice = Lattice("square", (20, 20))
+    seed = seed_sites("square", lattice, {"side": 8})  # x, y in 6..13
+    spins = np.ones((3, 20, 20), dtype=np.int8)
+    spins[0][seed] = -1                      # the seed itself: 64 sites
+    spins[0, 0:2, 0:2] = -1                  # a separate down cluster outside: not counted
+    spins[1, 8:10, 8:10] = -1                # only a small remnant inside the seed
+    spins[1, 8:10, 10:17] = -1               # ... joined to sites outside it: 2 x 9 in all
+    spins[1, 15:17, 12:14] = -1              # a smaller down cluster also touching the seed
+    # replica 2: no down spin left in the seed region
+    spins[2, 0, 0] = -1
+    assert seed_area(spins, lattice, seed).tolist() == [64, 18, 0]
+
+
+def test_seeded_run_records_the_seed_area():
+    """At T = 0 no down site appears outside the seed (every bulk up spin has a field of
+    +4), so the seed area can only fall short of the down count if the domain splits."""
+    from coarsen.simulate import simulate
+
+    spec = parse_spec(_spec('state = "disk"\nradius = 8.0', size=(32, 32), replicas=3))
+    ds = simulate(spec).dataset
+    down = (1 - ds["magnetization"].values) / 2 * 32 * 32
+    area = ds["seed_area"].values
+    assert area.dtype == np.int64 and area[0, 0] == seed_sites("disk", spec.lattice,
+                                                                  {"radius": 8.0}).sum()
+    assert np.all(area <= np.round(down)) and np.all(area[:, -1] < area[:, 0])

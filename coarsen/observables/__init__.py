@@ -18,6 +18,7 @@ gives bitwise the same results for any value.
 from coarsen.observables.domains import (
     domain_count,
     domain_labels,
+    seed_area,
     domain_statistics,
     largest_domain,
 )
@@ -62,6 +63,7 @@ __all__ = [
     "bond_sums",
     "domain_count",
     "domain_labels",
+    "seed_area",
     "domain_statistics",
     "largest_domain",
     # constants
