@@ -35,7 +35,7 @@ from coarsen._validation import (
     check_number,
 )
 
-__all__ = ["Schedule", "constant", "from_points"]
+__all__ = ["Schedule", "constant", "crossing_time", "from_points", "quench", "ramp"]
 
 
 def _normalise(points, name: str, signed: bool) -> tuple[tuple[float, float], ...]:
@@ -223,3 +223,38 @@ def from_points(points, *, signed: bool = False, name: str = "points") -> Schedu
         For badly formed points; the message names ``name`` and the offending point.
     """
     return Schedule(_normalise(points, name, signed), signed=signed)
+
+
+def quench(before: float, after: float, at: float = 0.0) -> Schedule:
+    """An instantaneous step from ``before`` to ``after`` at time ``at`` (sweeps)."""
+    at = check_number(at, "at", minimum=0.0)
+    if at == 0.0:
+        return from_points([(0.0, before), (0.0, after)])
+    return from_points([(0.0, before), (at, before), (at, after)])
+
+
+def ramp(start: float, stop: float, duration: float) -> Schedule:
+    """Linear from ``start`` at t = 0 to ``stop`` at ``duration`` (> 0 sweeps), then held.
+
+    A ramp followed by a hold is this schedule run past ``duration``: the last value holds.
+    """
+    duration = check_number(duration, "duration", minimum=0.0, strict_minimum=True)
+    return from_points([(0.0, start), (duration, stop)])
+
+
+def crossing_time(schedule: Schedule, level: float) -> float | None:
+    """The first time the schedule reaches ``level`` from a value on the other side of it.
+
+    Returns None if it never crosses (a schedule that starts at ``level`` has not crossed).
+    Linear segments are interpolated; a jump across ``level`` crosses at the jump time.
+    """
+    times, values = schedule.times, schedule.values
+    for i in range(1, len(times)):
+        a, b = values[i - 1] - level, values[i] - level
+        if a == 0.0:
+            continue
+        if a * b <= 0.0 and b != a:
+            if times[i] == times[i - 1]:
+                return float(times[i])
+            return float(times[i - 1] + (times[i] - times[i - 1]) * a / (a - b))
+    return None

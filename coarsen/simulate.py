@@ -29,6 +29,7 @@ from coarsen.engine import advance, make_streams
 from coarsen.equilibrium import equilibrium_energy
 from coarsen.initial import initial_spins
 from coarsen.observables import MeasurementGrid, measure, seed_area
+from coarsen.schedule import crossing_time
 from coarsen.seeded import SEEDED_PARAMETERS, seed_sites
 from coarsen.series import MeasurementSeries
 
@@ -284,6 +285,9 @@ def _dataset(spec, grid: MeasurementGrid, state: RunState) -> xr.Dataset:
         "replicas": int(spec.replicas),
         "initial_state": spec.initial.state,
     }
+    crossing = crossing_time(spec.temperature, lattice.tc * abs(spec.J))
+    if crossing is not None and lattice.tc > 0:
+        attrs["crossing_time"] = crossing
     if spec.initial.parameters:
         attrs["initial_parameters"] = json.dumps(spec.initial.parameter_dict())
     if spec.source is not None:

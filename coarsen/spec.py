@@ -24,7 +24,9 @@ Temperature: exactly one of ``value`` (T >= 0), ``relative`` (a fraction >= 0 of
 critical temperature :attr:`Spec.tc`), ``points`` (``[[t0, T0], [t1, T1], ...]`` in sweeps,
 piecewise linear from t0 = 0, the last value held, a repeated time a jump; see
 :mod:`coarsen.schedule`) or ``relative_points`` (the same with temperatures as fractions of
-Tc). The critical temperature is ``|J|`` times the lattice's (:attr:`Lattice.tc`); it is 0 for
+Tc), or ``ramp = { start, stop, duration, hold, relative }`` (linear from start to stop over
+``duration`` sweeps, then held; ``hold`` bounds the measurement times; ``relative = true``
+gives the temperatures as fractions of Tc; one duration per spec in this version). The critical temperature is ``|J|`` times the lattice's (:attr:`Lattice.tc`); it is 0 for
 the chain, for J = 0 and for the triangular antiferromagnet (J < 0, frustrated: no ordering at
 any T > 0, Wannier 1950), where relative temperatures are refused.
 
@@ -60,7 +62,7 @@ from coarsen._validation import (
 from coarsen.engine import ACCEPTANCES, RULES, UPDATES, check_dynamics
 from coarsen.initial import ORDERS, InitialState, check_state
 from coarsen.lattice import BOUNDARIES, LATTICE_KINDS, Lattice
-from coarsen.schedule import Schedule, constant, from_points
+from coarsen.schedule import Schedule, constant, from_points, ramp
 from coarsen.seeded import SEEDED_PARAMETERS, read_configuration, seed_centre, seed_sites
 
 __all__ = [
@@ -79,14 +81,15 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "lattice": ("kind", "size", "boundary"),
     "model": ("J", "h"),
     "dynamics": ("rule", "acceptance", "update"),
-    "temperature": ("value", "relative", "points", "relative_points"),
+    "temperature": ("value", "relative", "points", "relative_points", "ramp"),
     "initial": ("state", "magnetization", "exact", "radius", "side", "width", "amplitude",
                 "period", "centre", "path"),
     "measure": ("times", "order", "snapshots", "equilibrium_energy"),
     "ensemble": ("replicas", "seed"),
 }
 #: Parts of the design that a later version adds.
-NOT_YET = {"temperature.ramp": "ramps", "field": "field schedules ([field])"}
+NOT_YET = {"field": "field schedules ([field])"}
+_RAMP_KEYS = ("start", "stop", "duration", "hold", "relative")
 #: Largest measurement time: whole sweeps stay exact in the dataset's float64 time axis.
 MAX_TIME = 2**53
 DEFAULT_REPLICAS = 8
@@ -397,10 +400,38 @@ def _temperature(table: dict, lattice: Lattice, J: float) -> Schedule:
     if form == "relative":
         fraction = check_number(value, key, minimum=0.0, what="fraction of Tc")
         return constant(fraction * tc)
+    if form == "ramp":
+        return _ramp(value, key, tc, lattice)
     points = from_points(value, name=key)
     if form == "relative_points":
         points = Schedule(tuple((t, v * tc) for t, v in points.points))
     return points
+
+
+def _ramp(value, key: str, tc: float, lattice: Lattice) -> Schedule:
+    if not isinstance(value, dict):
+        _fail(f"{value!r} is not a table; write ramp = {{ start = 1.5, stop = 0.5, "
+              "duration = 1000, relative = true }", key, value, type_error=True)
+    _check_keys(value, key, _RAMP_KEYS)
+    for name in ("start", "stop", "duration"):
+        _required(value, key, name, f"{name} = ...")
+    relative = check_bool(value.get("relative", False), f"{key}.relative")
+    if relative and tc == 0:
+        _fail(f"relative = true, but the {lattice.kind} lattice has no ordering transition "
+              "(Tc = 0); give absolute temperatures", f"{key}.relative", True)
+    if isinstance(value["duration"], list):
+        _fail(f"{value['duration']!r}: several ramp durations (one dataset with a ramp_time "
+              "dimension) are not available in this version; give one duration per spec",
+              f"{key}.duration", value["duration"])
+    scale = tc if relative else 1.0
+    what = "fraction of Tc" if relative else "temperature"
+    start = check_number(value["start"], f"{key}.start", minimum=0.0, what=what) * scale
+    stop = check_number(value["stop"], f"{key}.stop", minimum=0.0, what=what) * scale
+    duration = check_number(value["duration"], f"{key}.duration", minimum=0.0,
+                            strict_minimum=True, what="duration in sweeps")
+    if "hold" in value:
+        check_number(value["hold"], f"{key}.hold", minimum=0.0, what="hold time in sweeps")
+    return ramp(start, stop, duration)
 
 
 def _initial(table: dict, lattice: Lattice, source) -> InitialState:
@@ -508,6 +539,13 @@ def _build(mapping: dict, source, text: str) -> Spec:
     measure = tables["measure"]
     times = _times(_required(measure, "measure", "times",
                              "times = { start = 1, stop = 1000, count = 25 }"))
+    ramp_table = tables["temperature"].get("ramp")
+    if isinstance(ramp_table, dict) and "hold" in ramp_table:
+        end = float(ramp_table["duration"]) + float(ramp_table["hold"])
+        if times[-1] > end:
+            _fail(f"the last time {times[-1]} is past the end of the ramp and hold "
+                  f"({end:g} sweeps); stop the measurements by then or lengthen the hold",
+                  "measure.times", times[-1])
     order = check_choice(measure.get("order", "ferro"), ORDERS, "measure.order", what="order")
     if order == "neel" and not lattice.bipartite:
         _fail(f"'neel' needs a bipartite lattice, but a {lattice.describe()} lattice is not "

@@ -128,3 +128,20 @@ def test_bad_times_and_bounds():
         s.sweep_values(1.5, 3)
     with pytest.raises(ValueError, match="value: -1.0 is out of range"):
         constant(-1.0)
+
+
+def test_protocol_helpers_and_the_crossing_time():
+    from coarsen.schedule import crossing_time, quench, ramp
+
+    down = ramp(3.0, 1.0, 40)
+    assert down.at([0, 20, 40, 100]).tolist() == [3.0, 2.0, 1.0, 1.0]
+    assert crossing_time(down, 2.269) == pytest.approx(40 * (3.0 - 2.269) / 2.0)
+    assert crossing_time(down, 5.0) is None and crossing_time(down, 3.0) is None
+    step = quench(4.0, 1.0, at=10)
+    assert step.at([0, 9.5, 10, 11]).tolist() == [4.0, 4.0, 1.0, 1.0]
+    assert crossing_time(step, 2.0) == 10.0
+    assert quench(4.0, 1.0).at([0]).tolist() == [1.0]
+    up = ramp(0.5, 3.5, 30)
+    assert crossing_time(up, 2.0) == pytest.approx(15.0)
+    with pytest.raises(ValueError, match="duration"):
+        ramp(1.0, 0.0, 0)

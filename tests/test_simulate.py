@@ -265,3 +265,13 @@ def test_run_prints_a_summary_without_a_progress_bar_when_not_a_terminal(tmp_pat
     captured = capsys.readouterr()
     assert captured.out.startswith("wrote ") and "measurements" in captured.out
     assert captured.err == ""
+
+
+def test_ramp_run_records_the_protocol_and_its_crossing_of_tc():
+    text = _spec_text(temperature="ramp = { start = 1.5, stop = 0.5, duration = 40, "
+                                  "relative = true }",
+                      times='times = { start = 0, stop = 60, count = 7, spacing = "linear" }')
+    ds = simulate(parse_spec(text)).dataset
+    assert np.allclose(ds["temperature"].values,
+                       SQUARE_TC * np.clip(1.5 - ds["time"].values / 40, 0.5, None))
+    assert ds.attrs["crossing_time"] == pytest.approx(20.0)

@@ -189,7 +189,7 @@ def test_two_temperature_forms_at_once():
     error = _error(_edit("value = 1.5", "value = 1.5\nrelative = 0.5"))
     assert error.key == "temperature" and error.value == ("value", "relative")
     assert "value and relative are both given" in str(error)
-    assert error.allowed == ("value", "relative", "points", "relative_points")
+    assert error.allowed == ("value", "relative", "points", "relative_points", "ramp")
 
 
 def test_no_temperature_form():
@@ -208,9 +208,24 @@ def test_bad_temperature_points():
     assert error.key == "temperature.value" and "-0.1 is out of range" in str(error)
 
 
-def test_ramp_is_not_available_yet():
-    error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = 100 }"))
-    assert error.key == "temperature.ramp" and "not available in this version" in str(error)
+def test_ramp_through_tc():
+    tc = 2 / math.log(1 + math.sqrt(2))
+    spec = parse_spec(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = 100, "
+                                           "relative = true }"))
+    assert np.allclose(spec.temperature.at([0, 50, 100, 150]), [1.5 * tc, tc, 0.5 * tc, 0.5 * tc])
+    error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5 }"))
+    assert error.key == "temperature.ramp.duration" and "missing" in str(error)
+    error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = 100, "
+                                        "speed = 2 }"))
+    assert error.key == "temperature.ramp.speed" and "unknown key" in str(error)
+    error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = [10, 20] }"))
+    assert error.key == "temperature.ramp.duration" and "not available" in str(error)
+    error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = 50, "
+                                        "hold = 20 }"))
+    assert error.key == "measure.times" and "past the end of the ramp" in str(error)
+
+
+def test_field_schedules_are_not_available_yet():
     error = _error(MINIMAL + "\n[field]\nvalue = 0.1\n")
     assert error.key == "field" and "not available in this version" in str(error)
 
