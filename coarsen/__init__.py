@@ -38,6 +38,7 @@ _LAZY = {
     "measure": "coarsen.observables",
     "MeasurementGrid": "coarsen.observables",
     "equilibrium_energy": "coarsen.equilibrium",
+    "fit_growth": "coarsen.fit",
 }
 
 __all__ = [
@@ -45,6 +46,7 @@ __all__ = [
     "advance",
     "energy_per_site",
     "equilibrium_energy",
+    "fit_growth",
     "load_snapshots",
     "load_spec",
     "magnetization_per_site",

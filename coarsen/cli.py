@@ -212,6 +212,102 @@ def _run_bench(args) -> int:
     return 0
 
 
+def _fixed_value(text: str) -> tuple[str, float]:
+    name, sep, value = text.partition("=")
+    if not sep or not name.strip():
+        raise argparse.ArgumentTypeError(f"{text!r} is not NAME=VALUE (for example n=0.3333)")
+    try:
+        number = float(value)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r}: {value!r} is not a number") from None
+    return name.strip(), number
+
+
+def _add_fit(subcommands) -> None:
+    fit = subcommands.add_parser(
+        "fit",
+        help="fit a growth law L(t) to the lengths of a dataset or a CSV length table",
+        description=(
+            "Fit L = A t^n (power), L0 + A t^n (offset) or A (t + t0)^n (shifted) to ln L "
+            "with emcee, the covariance between times taken from the replicas. Prints the "
+            "median and highest-density intervals, a WAIC comparison of the three models and "
+            "whether n is consistent with 1/2 (non-conserved) or 1/3 (conserved)."
+        ),
+    )
+    fit.add_argument("input", metavar="INPUT",
+                     help="a dataset (.nc) from coarsen run/measure, or a CSV length table "
+                          "(columns time, length, optional length_err)")
+    fit.add_argument("--estimator", default=None,
+                     choices=("corr_zero", "corr_half", "sk_moment", "wall"),
+                     help="the dataset's length estimator (default: corr_half)")
+    fit.add_argument("--model", choices=("power", "offset", "shifted"), default="power",
+                     help="the reported model (default: power)")
+    fit.add_argument("--tmin", type=_time_value, default=None, metavar="T",
+                     help="first time to fit (default: automatic, drops the transient)")
+    fit.add_argument("--tmax", type=_time_value, default=None, metavar="T",
+                     help="last time to fit (default: automatic, drops finite-size saturation)")
+    fit.add_argument("-o", "--output", default=None, metavar="FIT.nc",
+                     help="write the fit (posterior draws, n_eff, comparison) as NetCDF")
+    fit.add_argument("--json", action="store_true", help="print one JSON object")
+    fit.add_argument("--fix", type=_fixed_value, action="append", default=[],
+                     metavar="NAME=VALUE", help="hold a parameter fixed, e.g. --fix n=0.3333 "
+                                                "(repeatable)")
+    fit.add_argument("--extra-scatter", action="store_true",
+                     help="fit an extra scatter in ln L (error bars may be underestimated)")
+    fit.add_argument("--no-compare", action="store_true",
+                     help="fit only the chosen model (no WAIC comparison)")
+    fit.add_argument("--effective", action="store_true",
+                     help="also print the effective exponent n_eff(t)")
+    fit.add_argument("--system-size", type=_seconds, default=None, metavar="L",
+                     help="smallest side of the system (lattice spacings) for the automatic "
+                          "late cut, when the input does not say")
+    fit.add_argument("--max-steps", type=_thread_count, default=40000, metavar="N",
+                     help="step cap of each chain (default: 40000)")
+    fit.add_argument("--seed", type=int, default=None, help="sampler seed (default: fixed)")
+    fit.add_argument("--quiet", action="store_true", help="no printed summary")
+    fit.set_defaults(handler=_run_fit)
+
+
+def _run_fit(args) -> int:
+    import json
+    import warnings
+
+    from coarsen.dataset import write_dataset
+    from coarsen.fit import fit_growth
+    from coarsen.fit.sampling import DEFAULT_SEED
+
+    if args.output is not None:
+        output = os.path.abspath(args.output)
+        same = os.path.exists(output) and os.path.exists(args.input) and \
+            os.path.samefile(output, args.input)
+        if same or output == os.path.abspath(args.input):
+            raise ValueError(f"output {args.output!r}: is the input; a fit is written to its "
+                             f"own file")
+        if not os.path.isdir(os.path.dirname(output)):
+            raise ValueError(f"output {args.output!r}: the directory does not exist")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        result = fit_growth(args.input, estimator=args.estimator, model=args.model,
+                            fixed=dict(args.fix), tmin=args.tmin, tmax=args.tmax,
+                            extra_scatter=args.extra_scatter, compare=not args.no_compare,
+                            seed=DEFAULT_SEED if args.seed is None else args.seed,
+                            max_steps=args.max_steps, system_size=args.system_size)
+    for warning in caught:
+        print(f"{_PROG} fit: warning: {_one_line(warning.message)}", file=sys.stderr)
+    if args.output is not None:
+        write_dataset(result.to_dataset(), args.output)
+    if args.json:
+        print(json.dumps(result.to_json()))
+    elif not args.quiet:
+        print(result.format_table())
+        if args.effective:
+            print()
+            print(result.format_effective_exponent())
+        if args.output is not None:
+            print(f"wrote {args.output}")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     """Build the argument parser of the ``coarsen`` command.
 
@@ -232,6 +328,7 @@ def build_parser() -> argparse.ArgumentParser:
     subcommands.required = True
     _add_run(subcommands)
     _add_measure(subcommands)
+    _add_fit(subcommands)
     _add_bench(subcommands)
     return parser
 
