@@ -41,14 +41,21 @@ class _Parser(argparse.ArgumentParser):
         raise _BadInput(f"{self.prog}: {message}")
 
 
-def _thread_count(text: str) -> int:
+def _number(text: str, what: str, *, integer: bool = False, minimum: float = 0.0,
+            strict: bool = False):
+    """Parse an option value: a finite number (or whole number) at or above ``minimum``."""
     try:
-        value = int(text)
+        value = int(text) if integer else float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"{value} must be at least 1")
+        raise argparse.ArgumentTypeError(f"{text!r} is not {what}") from None
+    if not (value > minimum if strict else value >= minimum) or value == float("inf"):
+        bound = f"{'>' if strict else '>='} {minimum:g}"
+        raise argparse.ArgumentTypeError(f"{text!r} must be finite and {bound}")
     return value
+
+
+def _thread_count(text: str) -> int:
+    return _number(text, "a whole number", integer=True, minimum=1)
 
 
 def _add_bench(subcommands) -> None:
@@ -71,23 +78,11 @@ def _add_bench(subcommands) -> None:
 
 
 def _seconds(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number of seconds") from None
-    if not value > 0 or value == float("inf"):
-        raise argparse.ArgumentTypeError(f"{text!r} must be a finite number of seconds > 0")
-    return value
+    return _number(text, "a number of seconds", strict=True)
 
 
 def _time_value(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a time in sweeps") from None
-    if not (value >= 0 and value != float("inf")):
-        raise argparse.ArgumentTypeError(f"{text!r} must be a finite time >= 0")
-    return value
+    return _number(text, "a time in sweeps")
 
 
 def _add_run(subcommands) -> None:
