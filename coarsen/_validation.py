@@ -23,6 +23,9 @@ __all__ = [
     "check_choice",
     "check_integer",
     "check_number",
+    "check_spins",
+    "check_stack_shape",
+    "finite_float",
     "did_you_mean",
     "is_integer",
     "is_number",
@@ -189,3 +192,68 @@ def check_bool(value, name: str) -> bool:
         raise ParameterTypeError(f"{name}: {value!r} is not true or false",
                                  name=name, value=value, allowed=(True, False))
     return bool(value)
+
+
+def finite_float(value, name: str) -> float:
+    """``float(value)`` if it is finite; bools are refused.
+
+    Unlike :func:`check_number` this accepts anything ``float`` converts (NumPy 0-d arrays,
+    for example), for the array-facing functions that have always taken those.
+
+    Raises
+    ------
+    TypeError
+        For a bool or a value ``float`` cannot convert.
+    ValueError
+        For NaN or infinity.
+    """
+    if isinstance(value, bool):
+        raise TypeError(f"{name}: {value!r} is not a number")
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        raise TypeError(f"{name}: {value!r} is not a number") from None
+    if not math.isfinite(number):
+        raise ValueError(f"{name}: {value!r} is not finite")
+    return number
+
+
+def check_stack_shape(array: np.ndarray, lattice, name: str = "spins") -> None:
+    """Check that ``array`` has shape (R >= 1, *lattice.shape).
+
+    Raises
+    ------
+    ValueError
+        For another shape or no replica; the message names ``name``.
+    """
+    if array.ndim != lattice.dimension + 1 or array.shape[1:] != lattice.shape:
+        raise ValueError(
+            f"{name}: shape {array.shape} is not (replicas, {', '.join(map(str, lattice.shape))})"
+            f" for a {lattice.describe()} lattice"
+        )
+    if array.shape[0] < 1:
+        raise ValueError(f"{name}: needs at least one replica")
+
+
+def check_spins(spins, lattice, name: str = "spins", *, writeable: bool = False) -> None:
+    """Check a stack of configurations: an int8 ndarray of shape (R >= 1, *lattice.shape).
+
+    With ``writeable`` it must also be C-contiguous and writeable (the engine advances it in
+    place). Values are not checked here.
+
+    Raises
+    ------
+    TypeError
+        For a non-array or a dtype other than int8.
+    ValueError
+        For a wrong shape, no replica, or (with ``writeable``) a read-only or
+        non-contiguous array.
+    """
+    if not isinstance(spins, np.ndarray):
+        raise TypeError(f"{name}: expected an int8 ndarray, got {type(spins).__name__}")
+    if spins.dtype != np.int8:
+        raise TypeError(f"{name}: dtype is {spins.dtype}, expected int8 spins of +1 and -1")
+    check_stack_shape(spins, lattice, name)
+    if writeable and not (spins.flags.c_contiguous and spins.flags.writeable):
+        raise ValueError(f"{name}: must be a C-contiguous, writeable array")
+

@@ -22,6 +22,7 @@ import math
 
 import numpy as np
 
+from coarsen._validation import check_spins
 from coarsen.kernels.checkerboard import (
     glauber_checkerboard_bipartite,
     glauber_checkerboard_triangular,
@@ -90,22 +91,6 @@ def check_dynamics(lattice: Lattice, rule: str = "glauber", acceptance: str = "h
         problem = lattice.colouring_error()
         if problem:
             raise ValueError(problem)
-
-
-def _check_spins(spins, lattice: Lattice, name="spins") -> None:
-    if not isinstance(spins, np.ndarray):
-        raise TypeError(f"{name}: expected an int8 ndarray, got {type(spins).__name__}")
-    if spins.dtype != np.int8:
-        raise TypeError(f"{name}: dtype is {spins.dtype}, expected int8 spins of +1 and -1")
-    if spins.ndim != lattice.dimension + 1 or spins.shape[1:] != lattice.shape:
-        raise ValueError(
-            f"{name}: shape {spins.shape} is not (replicas, {', '.join(map(str, lattice.shape))})"
-            f" for a {lattice.describe()} lattice"
-        )
-    if spins.shape[0] < 1:
-        raise ValueError(f"{name}: needs at least one replica")
-    if not (spins.flags.c_contiguous and spins.flags.writeable):
-        raise ValueError(f"{name}: must be a C-contiguous, writeable array")
 
 
 def _check_spin_values(spins, name="spins") -> None:
@@ -349,7 +334,7 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
         For bad arrays or parameters; the message names the parameter.
     """
     check_dynamics(lattice, rule, acceptance, update)
-    _check_spins(spins, lattice)
+    check_spins(spins, lattice, writeable=True)
     if isinstance(sweeps, bool) or not isinstance(sweeps, (int, np.integer)):
         raise TypeError(f"sweeps: {sweeps!r} is not a whole number >= 0")
     if sweeps < 0:
@@ -429,7 +414,7 @@ def energy_per_site(spins: np.ndarray, lattice: Lattice, J: float = 1.0,
     -------
     ndarray of shape (R,) and dtype float64
     """
-    _check_spins(spins, lattice)
+    check_spins(spins, lattice, writeable=True)
     bonds = _bond_sum(spins, lattice)
     field = spins.reshape(spins.shape[0], -1).sum(axis=1, dtype=np.int64)
     return (-J * bonds - h * field) / lattice.n_sites
@@ -438,7 +423,7 @@ def energy_per_site(spins: np.ndarray, lattice: Lattice, J: float = 1.0,
 def magnetization_per_site(spins: np.ndarray, lattice: Lattice,
                            order: str = "ferro") -> np.ndarray:
     """Order parameter per site: mean spin (``"ferro"``) or staggered mean (``"neel"``)."""
-    _check_spins(spins, lattice)
+    check_spins(spins, lattice, writeable=True)
     _choice(order, ("ferro", "neel"), "order")
     s = spins.astype(np.int64)
     if order == "neel":

@@ -25,6 +25,7 @@ from functools import lru_cache
 
 from scipy import integrate, special
 
+from coarsen._validation import finite_float
 from coarsen.lattice import LATTICE_KINDS
 
 __all__ = ["equilibrium_energy"]
@@ -37,18 +38,6 @@ _BONDS_PER_SITE = {"chain": 1, "square": 2, "triangular": 3, "cubic": 3}
 _GROUND_STATE_K = 50.0
 # Below this K the triangular energy comes from its high-temperature series (error ~ t^4).
 _HIGH_T_K = 1e-4
-
-
-def _number(value, name: str) -> float:
-    if isinstance(value, bool):
-        raise TypeError(f"{name}: {value!r} is not a number")
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise TypeError(f"{name}: {value!r} is not a number") from None
-    if not math.isfinite(v):
-        raise ValueError(f"{name}: {value!r} is not finite")
-    return v
 
 
 def equilibrium_energy(kind: str, temperature: float, J: float = 1.0,
@@ -105,10 +94,10 @@ def equilibrium_energy(kind: str, temperature: float, J: float = 1.0,
     if kind not in LATTICE_KINDS:
         raise ValueError(f"kind: {kind!r} is not a lattice kind; choose one of "
                          f"{', '.join(LATTICE_KINDS)}")
-    T = _number(temperature, "temperature")
+    T = finite_float(temperature, "temperature")
     if T < 0:
         raise ValueError(f"temperature: {temperature!r} is not a temperature >= 0")
-    return _energy(kind, T, _number(J, "J"), _number(h, "h"))
+    return _energy(kind, T, finite_float(J, "J"), finite_float(h, "h"))
 
 
 @lru_cache(maxsize=1024)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from coarsen._validation import check_stack_shape
 from coarsen.lattice import Lattice
 
 __all__ = ["PRECISIONS", "check_lattice", "check_mask", "check_precision", "check_stack"]
@@ -26,13 +27,7 @@ def check_stack(spins, lattice: Lattice, name: str = "spins") -> np.ndarray:
     if spins.dtype == bool or not (np.issubdtype(spins.dtype, np.integer)
                                    or np.issubdtype(spins.dtype, np.floating)):
         raise TypeError(f"{name}: dtype is {spins.dtype}, expected int8 spins of +1 and -1")
-    if spins.ndim != lattice.dimension + 1 or spins.shape[1:] != lattice.shape:
-        raise ValueError(
-            f"{name}: shape {spins.shape} is not (replicas, {', '.join(map(str, lattice.shape))})"
-            f" for a {lattice.describe()} lattice"
-        )
-    if spins.shape[0] < 1:
-        raise ValueError(f"{name}: needs at least one replica")
+    check_stack_shape(spins, lattice, name)
     return spins
 
 

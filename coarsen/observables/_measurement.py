@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from coarsen._validation import check_spins, finite_float
 from coarsen.equilibrium import equilibrium_energy as exact_equilibrium_energy
 from coarsen.lattice import Lattice
 from coarsen.observables._checks import check_lattice, check_mask, check_stack
@@ -60,32 +61,6 @@ class Measurements:
     length: np.ndarray
     domain_count: np.ndarray
     largest_domain: np.ndarray
-
-
-def _number(value, name: str) -> float:
-    if isinstance(value, bool):
-        raise TypeError(f"{name}: {value!r} is not a number")
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise TypeError(f"{name}: {value!r} is not a number") from None
-    if not math.isfinite(v):
-        raise ValueError(f"{name}: {value!r} is not finite")
-    return v
-
-
-def _check_spins(spins, lattice: Lattice) -> None:
-    if not isinstance(spins, np.ndarray):
-        raise TypeError(f"spins: expected an int8 ndarray, got {type(spins).__name__}")
-    if spins.dtype != np.int8:
-        raise TypeError(f"spins: dtype is {spins.dtype}, expected int8 spins of +1 and -1")
-    if spins.ndim != lattice.dimension + 1 or spins.shape[1:] != lattice.shape:
-        raise ValueError(
-            f"spins: shape {spins.shape} is not (replicas, {', '.join(map(str, lattice.shape))})"
-            f" for a {lattice.describe()} lattice"
-        )
-    if spins.shape[0] < 1:
-        raise ValueError("spins: needs at least one replica")
 
 
 def _check_values(spins: np.ndarray, mask) -> None:
@@ -233,12 +208,12 @@ def measure(spins: np.ndarray, lattice: Lattice, grid: MeasurementGrid, *, tempe
     if grid.lattice != lattice:
         raise ValueError(f"grid: built for a {grid.lattice.describe()} lattice, not for the "
                          f"{lattice.describe()} lattice of the spins")
-    _check_spins(spins, lattice)
-    T = _number(temperature, "temperature")
+    check_spins(spins, lattice)
+    T = finite_float(temperature, "temperature")
     if T < 0:
         raise ValueError(f"temperature: {temperature!r} is not a temperature >= 0")
-    J = _number(J, "J")
-    h = _number(h, "h")
+    J = finite_float(J, "J")
+    h = finite_float(h, "h")
     _check_order(lattice, order)
     if equilibrium_energy is None:
         reference = exact_equilibrium_energy(lattice.kind, T, J, h)
