@@ -85,6 +85,10 @@ def _time_value(text: str) -> float:
     return _number(text, "a time in sweeps")
 
 
+def _length_value(text: str) -> float:
+    return _number(text, "a length in lattice spacings", strict=True)
+
+
 def _add_run(subcommands) -> None:
     run = subcommands.add_parser(
         "run",
@@ -253,7 +257,7 @@ def _add_fit(subcommands) -> None:
                      help="fit only the chosen model (no WAIC comparison)")
     fit.add_argument("--effective", action="store_true",
                      help="also print the effective exponent n_eff(t)")
-    fit.add_argument("--system-size", type=_seconds, default=None, metavar="L",
+    fit.add_argument("--system-size", type=_length_value, default=None, metavar="L",
                      help="smallest side of the system (lattice spacings) for the automatic "
                           "late cut, when the input does not say")
     fit.add_argument("--max-steps", type=_thread_count, default=40000, metavar="N",

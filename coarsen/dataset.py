@@ -115,7 +115,8 @@ def provenance() -> str:
     }, sort_keys=True)
 
 
-def _created() -> str:
+def created_now() -> str:
+    """The current UTC time in ISO 8601, to the second (the ``created`` attr)."""
     return datetime.now(timezone.utc).replace(microsecond=0).isoformat()
 
 
@@ -183,7 +184,7 @@ def build_dataset(arrays: dict[str, np.ndarray], *, times, k, r, attrs: dict,
     for name in _SITE_DIMS:
         if name in ds.coords:
             ds[name].attrs.update(units="lattice spacings", long_name=f"site coordinate {name}")
-    full = {"coarsen_version": coarsen.__version__, "created": _created()}
+    full = {"coarsen_version": coarsen.__version__, "created": created_now()}
     full.update(attrs)
     full["provenance"] = provenance()
     for key, value in full.items():

@@ -232,7 +232,7 @@ class GrowthFit:
         import xarray as xr
 
         import coarsen
-        from coarsen.dataset import provenance
+        from coarsen.dataset import created_now, provenance
 
         def var(dims, values, units, long_name):
             return xr.Variable(dims, np.asarray(values), attrs={"units": units,
@@ -293,5 +293,6 @@ class GrowthFit:
             "statement": "; ".join(self.statements),
             "summary": json.dumps(summary, sort_keys=True),
             "provenance": provenance(),
+            "created": created_now(),
         })
         return ds
