@@ -126,6 +126,30 @@ def _finite(value, name) -> float:
         raise ValueError(f"{name}: {value!r} is not finite")
     return v
 
+def _fields(field, sweeps) -> np.ndarray:
+    try:
+        h = np.asarray(field, dtype=float)
+    except (TypeError, ValueError):
+        raise TypeError(f"h: {field!r} is not a number") from None
+    if field is None or isinstance(field, bool):
+        raise TypeError(f"h: {field!r} is not a number")
+    if h.ndim == 0:
+        h = h.reshape(1)
+    elif h.ndim != 1 or h.shape[0] != sweeps:
+        raise ValueError(f"h: give one value or one per sweep ({sweeps}), got shape {h.shape}")
+    if not np.all(np.isfinite(h)):
+        raise ValueError(f"h: {float(h[~np.isfinite(h)][0])!r} is not finite")
+    return h
+
+
+def _protocol_pairs(temps: np.ndarray, fields: np.ndarray) -> list[tuple[float, float]]:
+    """One (T, h) pair per table: a single pair when both are constant, else one per sweep."""
+    if temps.size == 1 and fields.size == 1:
+        return [(float(temps[0]), float(fields[0]))]
+    size = max(temps.size, fields.size)
+    return list(zip(np.broadcast_to(temps, size).tolist(), np.broadcast_to(fields, size).tolist()))
+
+
 
 # --------------------------------------------------------------------------------------------
 # acceptance tables
@@ -342,7 +366,7 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
     sweeps = int(sweeps)
     temps = _temperatures(temperature, sweeps)
     J = _finite(J, "J")
-    h = _finite(h, "h")
+    fields = _fields(h, sweeps)
     n_rep = spins.shape[0]
     check_streams(streams, n_rep, _substreams(lattice, update))
     moves = np.zeros(n_rep, dtype=np.int64)
@@ -355,7 +379,11 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
     dims = _dims(lattice)
     flat = spins.reshape(n_rep, -1)
     if rule == "glauber":
-        tables = np.stack([_limits(up_probabilities(t, z, J, h, acceptance)) for t in temps])
+        cache = {}
+        for pair in _protocol_pairs(temps, fields):
+            if pair not in cache:
+                cache[pair] = _limits(up_probabilities(pair[0], z, J, pair[1], acceptance))
+        tables = np.stack([cache[pair] for pair in _protocol_pairs(temps, fields)])
         if update == "random":
             glauber_random_sequential(flat, streams[:, 0], tables, dims, kind, periodic,
                                       sweeps, moves)

@@ -125,10 +125,10 @@ def _check_resumed(state: RunState, spec, lattice) -> None:
         raise ValueError("checkpoint: its arrays do not match the spec; delete it to start afresh")
 
 
-def _reference_energy(spec, temperature: float):
+def _reference_energy(spec, temperature: float, field: float):
     if spec.equilibrium_energy is not None:
         return spec.equilibrium_energy
-    return equilibrium_energy(spec.lattice.kind, temperature, spec.J, spec.h)
+    return equilibrium_energy(spec.lattice.kind, temperature, spec.J, field)
 
 
 def simulate(spec, *, threads: int | None = None, checkpoint=None,
@@ -176,6 +176,20 @@ def simulate(spec, *, threads: int | None = None, checkpoint=None,
 
     if not (isinstance(checkpoint_every, (int, float)) and checkpoint_every > 0):
         raise ValueError(f"checkpoint_every: {checkpoint_every!r} is not a number of seconds > 0")
+    if spec.is_ramp_scan:
+        if checkpoint is not None:
+            raise ValueError("checkpoint: a ramp scan checkpoints each duration apart; run it "
+                             "with run_spec (coarsen run)")
+        from coarsen.ramp_scan import combine_ramp_datasets
+
+        results = [simulate(spec.variant(i), threads=threads, progress=progress,
+                            notify=notify, after_call=after_call)
+                   for i in range(len(spec.ramp_times))]
+        return RunResult(
+            dataset=combine_ramp_datasets(spec, [r.dataset for r in results]),
+            dynamics_seconds=sum(r.dynamics_seconds for r in results),
+            measuring_seconds=sum(r.measuring_seconds for r in results),
+            checkpoint_seconds=0.0, resumed_at=None)
     notify = notify or (lambda message: None)
     lattice = spec.lattice
     grid = MeasurementGrid(lattice)
@@ -224,10 +238,13 @@ def simulate(spec, *, threads: int | None = None, checkpoint=None,
                     temperatures = spec.temperature.sweep_values(state.clock, state.clock + n)
                     if np.all(temperatures == temperatures[0]):
                         temperatures = float(temperatures[0])
+                    fields = spec.field.sweep_values(state.clock, state.clock + n)
+                    if np.all(fields == fields[0]):
+                        fields = float(fields[0])
                     start = time.perf_counter()
                     state.moves += advance(state.spins, state.streams, lattice, n, temperatures,
                                            rule=spec.rule, acceptance=spec.acceptance,
-                                           update=spec.update, J=spec.J, h=spec.h)
+                                           update=spec.update, J=spec.J, h=fields)
                     timing["dynamics"] += time.perf_counter() - start
                     state.clock += n
                     bar.update(n)
@@ -241,9 +258,11 @@ def simulate(spec, *, threads: int | None = None, checkpoint=None,
                         last_save = time.monotonic()
                 start = time.perf_counter()
                 temperature = float(spec.temperature.at([target])[0])
+                field_now = float(spec.field.at([target])[0])
                 measured = measure(state.spins, lattice, grid, temperature=temperature,
-                                   J=spec.J, h=spec.h, order=spec.order, threads=threads,
-                                   equilibrium_energy=_reference_energy(spec, temperature))
+                                   J=spec.J, h=field_now, order=spec.order, threads=threads,
+                                   equilibrium_energy=_reference_energy(spec, temperature,
+                                                                        field_now))
                 state.series.store(state.next_index, measured)
                 if seed is not None:
                     field = state.spins if staggering is None else state.spins * staggering
@@ -267,7 +286,7 @@ def _dataset(spec, grid: MeasurementGrid, state: RunState) -> xr.Dataset:
     times = np.asarray(spec.times, dtype=np.float64)
     arrays = dict(state.series.arrays)
     arrays["temperature"] = spec.temperature.at(times)
-    arrays["field"] = np.full(len(times), float(spec.h))
+    arrays["field"] = spec.field.at(times)
     attrs = {
         "spec": spec.text,
         "seed": int(spec.seed) if spec.seed < 2**63 else str(spec.seed),
@@ -280,7 +299,6 @@ def _dataset(spec, grid: MeasurementGrid, state: RunState) -> xr.Dataset:
         "update": spec.update,
         "order": spec.order,
         "J": float(spec.J),
-        "h": float(spec.h),
         "tc": float(lattice.tc),
         "replicas": int(spec.replicas),
         "initial_state": spec.initial.state,
@@ -288,6 +306,8 @@ def _dataset(spec, grid: MeasurementGrid, state: RunState) -> xr.Dataset:
     crossing = crossing_time(spec.temperature, lattice.tc * abs(spec.J))
     if crossing is not None and lattice.tc > 0:
         attrs["crossing_time"] = crossing
+    if len(spec.field.points) == 1:
+        attrs["h"] = float(spec.field.points[0][1])
     if spec.initial.parameters:
         attrs["initial_parameters"] = json.dumps(spec.initial.parameter_dict())
     if spec.source is not None:
@@ -318,6 +338,12 @@ def run_spec(spec, output, *, threads: int | None = None, resume: bool = False,
     if not output.parent.is_dir():
         raise ValueError(f"output {str(output)!r}: the directory {str(output.parent)!r} "
                          "does not exist")
+    if spec.is_ramp_scan:
+        from coarsen.ramp_scan import run_ramp_scan
+
+        return run_ramp_scan(spec, output, threads=threads, resume=resume,
+                             checkpoint_every=checkpoint_every, progress=progress,
+                             notify=notify, after_call=after_call)
     checkpoint = output.with_name(output.name + ".checkpoint")
     result = simulate(spec, threads=threads, checkpoint=checkpoint,
                       checkpoint_every=checkpoint_every, resume=resume, progress=progress,

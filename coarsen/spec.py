@@ -26,9 +26,16 @@ piecewise linear from t0 = 0, the last value held, a repeated time a jump; see
 :mod:`coarsen.schedule`) or ``relative_points`` (the same with temperatures as fractions of
 Tc), or ``ramp = { start, stop, duration, hold, relative }`` (linear from start to stop over
 ``duration`` sweeps, then held; ``hold`` bounds the measurement times; ``relative = true``
-gives the temperatures as fractions of Tc; one duration per spec in this version). The critical temperature is ``|J|`` times the lattice's (:attr:`Lattice.tc`); it is 0 for
+gives the temperatures as fractions of Tc; a list of durations makes a ramp scan: one run per
+duration, gathered in one dataset along a ``ramp_time`` dimension, see :meth:`Spec.variant`).
+The critical temperature is ``|J|`` times the lattice's (:attr:`Lattice.tc`); it is 0 for
 the chain, for J = 0 and for the triangular antiferromagnet (J < 0, frustrated: no ordering at
 any T > 0, Wannier 1950), where relative temperatures are refused.
+
+Field: ``[model].h`` for a constant field, or a ``[field]`` table with one of ``value``,
+``points`` (``[[t0, h0], ...]``, values of either sign) or ``ramp = { start, stop, duration,
+hold }``, which then replaces ``[model].h`` (giving both is an error). Like the temperature,
+the field is applied once per sweep at the sweep's midpoint (:mod:`coarsen.schedule`).
 
 Measurement times: an explicit list (``times = [0, 10, 100]`` or ``times = { at = [...] }``), or
 ``{ start, stop, count, spacing }`` with ``count >= 2`` points from ``start`` to ``stop``, equally
@@ -86,10 +93,12 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
                 "period", "centre", "path"),
     "measure": ("times", "order", "snapshots", "equilibrium_energy"),
     "ensemble": ("replicas", "seed"),
+    "field": ("value", "points", "ramp"),
 }
 #: Parts of the design that a later version adds.
-NOT_YET = {"field": "field schedules ([field])"}
+NOT_YET: dict[str, str] = {}
 _RAMP_KEYS = ("start", "stop", "duration", "hold", "relative")
+_FIELD_RAMP_KEYS = ("start", "stop", "duration", "hold")
 #: Largest measurement time: whole sweeps stay exact in the dataset's float64 time axis.
 MAX_TIME = 2**53
 DEFAULT_REPLICAS = 8
@@ -137,8 +146,11 @@ class Spec:
     Attributes
     ----------
     lattice : Lattice
-    J, h : float
-        Coupling and uniform field.
+    J : float
+        Coupling.
+    field : Schedule
+        h(t) in sweeps (constant unless the spec has a ``[field]`` table); :attr:`h` is its
+        value when it is constant.
     rule, acceptance, update : str
         The dynamics (:func:`coarsen.engine.advance`).
     temperature : Schedule
@@ -156,7 +168,10 @@ class Spec:
     equilibrium_energy : float or None
         Energy per site of equilibrium at the final temperature, for the ``wall`` length
         estimator where no exact value is known.
-    text : str
+    ramp_times : tuple of float
+        For a ramp scan (a list of ramp durations), the durations, sorted; empty otherwise.
+        :attr:`temperature` is then the first duration's schedule; :meth:`variant` gives the
+        spec of each duration.
         The TOML text (stored in datasets).
     source : str or None
         The file it was read from.
@@ -164,7 +179,7 @@ class Spec:
 
     lattice: Lattice
     J: float
-    h: float
+    field: Schedule
     rule: str
     acceptance: str
     update: str
@@ -179,6 +194,45 @@ class Spec:
     equilibrium_energy: float | None
     text: str
     source: str | None
+    ramp_times: tuple[float, ...] = ()
+    ramp_schedules: tuple[Schedule, ...] = ()
+
+    @property
+    def h(self) -> float:
+        """The field, when it is constant in time.
+
+        Raises
+        ------
+        ValueError
+            When the spec's ``[field]`` varies in time (use :attr:`field`).
+        """
+        if len(set(value for _, value in self.field.points)) != 1:
+            raise ValueError("h: the field varies in time ([field]); use Spec.field")
+        return float(self.field.points[0][1])
+
+    @property
+    def is_ramp_scan(self) -> bool:
+        """True when the spec lists several ramp durations."""
+        return bool(self.ramp_times)
+
+    def variant(self, index: int) -> "Spec":
+        """The single-duration spec of a ramp scan's ``index``-th ramp time.
+
+        Each duration runs with its own seed, derived from the spec's seed and the index
+        (``SeedSequence([seed, index])``), so the runs are independent; the variant's text is
+        the scan's text with a closing comment naming the duration, which keeps checkpoints of
+        different durations apart.
+        """
+        if not self.ramp_times:
+            raise ValueError("variant: the spec is not a ramp scan (one ramp duration)")
+        if not 0 <= index < len(self.ramp_times):
+            raise ValueError(f"variant: index {index!r} is not in 0..{len(self.ramp_times) - 1}")
+        seed = int(np.random.SeedSequence([self.seed, index]).generate_state(1, np.uint64)[0])
+        return dataclasses.replace(
+            self, temperature=self.ramp_schedules[index], seed=seed, ramp_times=(),
+            ramp_schedules=(),
+            text=f"{self.text.rstrip()}\n# ramp scan: duration {self.ramp_times[index]:g} "
+                 f"(index {index}, seed {seed})\n")
 
     @property
     def final_time(self) -> int:
@@ -379,7 +433,8 @@ def _dynamics(table: dict, lattice: Lattice):
     return rule, acceptance, update
 
 
-def _temperature(table: dict, lattice: Lattice, J: float) -> Schedule:
+def _temperature(table: dict, lattice: Lattice, J: float) -> tuple[Schedule, ...]:
+    """The temperature schedule, or one per ramp duration for a scan (sorted durations)."""
     tc = critical_temperature(lattice, J)
     forms = [form for form in _TEMPERATURE_FORMS if form in table]
     listing = ", ".join(_TEMPERATURE_FORMS)
@@ -396,16 +451,31 @@ def _temperature(table: dict, lattice: Lattice, J: float) -> Schedule:
         _fail(f"{value!r} is relative to Tc, but the {lattice.kind} lattice with J = {J!r} "
               "has no ordering transition (Tc = 0); give value or points instead", key, value)
     if form == "value":
-        return constant(check_number(value, key, minimum=0.0, what="temperature"))
+        return (constant(check_number(value, key, minimum=0.0, what="temperature")),)
     if form == "relative":
         fraction = check_number(value, key, minimum=0.0, what="fraction of Tc")
-        return constant(fraction * tc)
+        return (constant(fraction * tc),)
     if form == "ramp":
         return _ramp(value, key, tc, lattice)
     points = from_points(value, name=key)
     if form == "relative_points":
         points = Schedule(tuple((t, v * tc) for t, v in points.points))
-    return points
+    return (points,)
+
+
+def _durations(value, key: str) -> tuple[float, ...]:
+    """One ramp duration, or a list of distinct ones (sorted), each > 0 sweeps."""
+    if not isinstance(value, list):
+        return (check_number(value, key, minimum=0.0, strict_minimum=True,
+                             what="duration in sweeps"),)
+    if len(value) == 0:
+        _fail("[] lists no durations; give one or more, e.g. [250, 1000, 4000]", key, value)
+    durations = [check_number(v, f"{key}[{i}]", minimum=0.0, strict_minimum=True,
+                              what="duration in sweeps") for i, v in enumerate(value)]
+    if len(set(durations)) != len(durations):
+        repeated = next(d for d in durations if durations.count(d) > 1)
+        _fail(f"{repeated:g} is listed twice; give each ramp duration once", key, value)
+    return tuple(sorted(durations))
 
 
 def _ramp(value, key: str, tc: float, lattice: Lattice) -> Schedule:
@@ -419,19 +489,61 @@ def _ramp(value, key: str, tc: float, lattice: Lattice) -> Schedule:
     if relative and tc == 0:
         _fail(f"relative = true, but the {lattice.kind} lattice has no ordering transition "
               "(Tc = 0); give absolute temperatures", f"{key}.relative", True)
-    if isinstance(value["duration"], list):
-        _fail(f"{value['duration']!r}: several ramp durations (one dataset with a ramp_time "
-              "dimension) are not available in this version; give one duration per spec",
-              f"{key}.duration", value["duration"])
     scale = tc if relative else 1.0
     what = "fraction of Tc" if relative else "temperature"
     start = check_number(value["start"], f"{key}.start", minimum=0.0, what=what) * scale
     stop = check_number(value["stop"], f"{key}.stop", minimum=0.0, what=what) * scale
+    durations = _durations(value["duration"], f"{key}.duration")
+    if "hold" in value:
+        check_number(value["hold"], f"{key}.hold", minimum=0.0, what="hold time in sweeps")
+    return tuple(ramp(start, stop, duration) for duration in durations)
+
+
+def _field(table: dict, model: dict) -> Schedule:
+    """h(t): [model].h, or the [field] table (value, points or ramp) that replaces it."""
+    if not table:
+        return constant(check_number(model.get("h", 0.0), "model.h", what="field"),
+                        signed=True)
+    if "h" in model:
+        _fail(f"{model['h']!r} is given, but so is a [field] table, which replaces it; give "
+              "the field in one place", "model.h", model["h"])
+    forms = [form for form in TABLE_KEYS["field"] if form in table]
+    listing = ", ".join(TABLE_KEYS["field"])
+    if len(forms) != 1:
+        _fail(f"{' and '.join(forms)} are given; give exactly one of {listing}", "field",
+              tuple(forms), TABLE_KEYS["field"])
+    form = forms[0]
+    key, value = f"field.{form}", table[form]
+    if form == "value":
+        return constant(check_number(value, key, what="field"), signed=True)
+    if form == "points":
+        return from_points(value, signed=True, name=key)
+    if not isinstance(value, dict):
+        _fail(f"{value!r} is not a table; write ramp = {{ start = 0.5, stop = -0.5, "
+              "duration = 1000 }", key, value, type_error=True)
+    _check_keys(value, key, _FIELD_RAMP_KEYS)
+    for name in ("start", "stop", "duration"):
+        _required(value, key, name, f"{name} = ...")
+    start = check_number(value["start"], f"{key}.start", what="field")
+    stop = check_number(value["stop"], f"{key}.stop", what="field")
     duration = check_number(value["duration"], f"{key}.duration", minimum=0.0,
                             strict_minimum=True, what="duration in sweeps")
     if "hold" in value:
         check_number(value["hold"], f"{key}.hold", minimum=0.0, what="hold time in sweeps")
-    return ramp(start, stop, duration)
+    return from_points([(0.0, start), (duration, stop)], signed=True, name=key)
+
+
+def _check_hold(ramp_table, key: str, times, shortest=None) -> None:
+    """Measurement times must end by the end of a ramp's hold (the shortest, for a scan)."""
+    if not (isinstance(ramp_table, dict) and "hold" in ramp_table):
+        return
+    duration = ramp_table["duration"] if shortest is None else shortest
+    end = float(duration) + float(ramp_table["hold"])
+    if times[-1] > end:
+        what = "the shortest ramp and its hold" if shortest is not None else "the ramp and hold"
+        _fail(f"the last time {times[-1]} is past the end of {what} ({end:g} sweeps, "
+              f"{key}); stop the measurements by then or lengthen the hold",
+              "measure.times", times[-1])
 
 
 def _initial(table: dict, lattice: Lattice, source) -> InitialState:
@@ -532,20 +644,21 @@ def _build(mapping: dict, source, text: str) -> Spec:
     lattice = _lattice(tables["lattice"])
     model = tables["model"]
     J = check_number(model.get("J", 1.0), "model.J", what="coupling")
-    h = check_number(model.get("h", 0.0), "model.h", what="field")
+    field = _field(tables["field"], model)
     rule, acceptance, update = _dynamics(tables["dynamics"], lattice)
-    temperature = _temperature(tables["temperature"], lattice, J)
+    schedules = _temperature(tables["temperature"], lattice, J)
+    temperature = schedules[0]
     initial = _initial(tables["initial"], lattice, source)
     measure = tables["measure"]
     times = _times(_required(measure, "measure", "times",
                              "times = { start = 1, stop = 1000, count = 25 }"))
     ramp_table = tables["temperature"].get("ramp")
-    if isinstance(ramp_table, dict) and "hold" in ramp_table:
-        end = float(ramp_table["duration"]) + float(ramp_table["hold"])
-        if times[-1] > end:
-            _fail(f"the last time {times[-1]} is past the end of the ramp and hold "
-                  f"({end:g} sweeps); stop the measurements by then or lengthen the hold",
-                  "measure.times", times[-1])
+    ramp_times = ()
+    if isinstance(ramp_table, dict) and isinstance(ramp_table["duration"], list):
+        ramp_times = _durations(ramp_table["duration"], "temperature.ramp.duration")
+    _check_hold(ramp_table, "temperature.ramp.hold", times,
+                shortest=ramp_times[0] if ramp_times else None)
+    _check_hold(tables["field"].get("ramp"), "field.ramp.hold", times)
     order = check_choice(measure.get("order", "ferro"), ORDERS, "measure.order", what="order")
     if order == "neel" and not lattice.bipartite:
         _fail(f"'neel' needs a bipartite lattice, but a {lattice.describe()} lattice is not "
@@ -564,11 +677,13 @@ def _build(mapping: dict, source, text: str) -> Spec:
                          "ensemble.seed", minimum=0, what="seed (whole number)")
     if initial.state == "file":
         read_configuration(initial.parameter_dict()["path"], lattice, replicas)
-    return Spec(lattice=lattice, J=J, h=h, rule=rule, acceptance=acceptance, update=update,
+    return Spec(lattice=lattice, J=J, field=field, rule=rule, acceptance=acceptance,
+                update=update,
                 temperature=temperature, initial=initial, times=times, order=order,
                 snapshots=snapshots, snapshot_times=_snapshot_times(times, snapshots),
                 replicas=replicas, seed=seed, equilibrium_energy=energy, text=text,
-                source=None if source is None else str(source))
+                source=None if source is None else str(source), ramp_times=ramp_times,
+                ramp_schedules=schedules if ramp_times else ())
 
 
 # --------------------------------------------------------------------------------------------

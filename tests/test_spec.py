@@ -218,16 +218,54 @@ def test_ramp_through_tc():
     error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = 100, "
                                         "speed = 2 }"))
     assert error.key == "temperature.ramp.speed" and "unknown key" in str(error)
-    error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = [10, 20] }"))
-    assert error.key == "temperature.ramp.duration" and "not available" in str(error)
     error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = 50, "
                                         "hold = 20 }"))
     assert error.key == "measure.times" and "past the end of the ramp" in str(error)
 
 
-def test_field_schedules_are_not_available_yet():
-    error = _error(MINIMAL + "\n[field]\nvalue = 0.1\n")
-    assert error.key == "field" and "not available in this version" in str(error)
+def test_ramp_scan_lists_durations_and_gives_one_spec_per_duration():
+    spec = parse_spec(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, "
+                                           "duration = [400, 100], relative = true }"))
+    assert spec.is_ramp_scan and spec.ramp_times == (100.0, 400.0)
+    variants = [spec.variant(i) for i in range(2)]
+    assert [v.temperature.points[-1][0] for v in variants] == [100.0, 400.0]
+    assert not any(v.is_ramp_scan for v in variants)
+    assert len({spec.seed, variants[0].seed, variants[1].seed}) == 3
+    assert variants[0].text != variants[1].text and variants[0].text.startswith(spec.text.rstrip())
+    for bad, key, words in [("[10, 10]", "temperature.ramp.duration", "listed twice"),
+                            ("[]", "temperature.ramp.duration", "lists no durations"),
+                            ("[10, -5]", "temperature.ramp.duration[1]", "out of range")]:
+        error = _error(_edit("value = 1.5", f"ramp = {{ start = 1.5, stop = 0.5, "
+                                            f"duration = {bad} }}"))
+        assert error.key == key and words in str(error), str(error)
+    error = _error(_edit("value = 1.5", "ramp = { start = 1.5, stop = 0.5, duration = [40, 400], "
+                                        "hold = 20 }"))
+    assert error.key == "measure.times" and "shortest ramp" in str(error)
+    with pytest.raises(ValueError, match="not a ramp scan"):
+        parse_spec(MINIMAL).variant(0)
+
+
+def test_field_table_replaces_the_constant_field():
+    constant = parse_spec(_edit("[dynamics]", "[model]\nh = 0.25\n[dynamics]"))
+    table = parse_spec(MINIMAL + "\n[field]\nvalue = 0.25\n")
+    assert constant.h == table.h == 0.25 and constant.field == table.field
+    ramp = parse_spec(MINIMAL + "\n[field]\nramp = { start = 0.5, stop = -0.5, duration = 40 }\n")
+    assert np.allclose(ramp.field.at([0, 20, 40, 80]), [0.5, 0.0, -0.5, -0.5])
+    with pytest.raises(ValueError, match="varies in time"):
+        ramp.h
+    points = parse_spec(MINIMAL + "\n[field]\npoints = [[0, 0.0], [10, 0.0], [10, -1.0]]\n")
+    assert points.field.at([9, 10]).tolist() == [0.0, -1.0]
+    for extra, key, words in [
+            ("[model]\nh = 0.1\n[field]\nvalue = 0.2\n", "model.h", "replaces it"),
+            ("[field]\nvalue = 0.1\npoints = [[0, 1.0]]\n", "field", "exactly one of"),
+            ("[field]\nramp = { start = 1, stop = 0, duration = 10, relative = true }\n",
+             "field.ramp.relative", "unknown key"),
+            ("[field]\nramp = { start = 1, stop = 0 }\n", "field.ramp.duration", "missing"),
+            ("[field]\nvalue = nan\n", "field.value", "not finite"),
+            ("[field]\nramp = { start = 1, stop = 0, duration = 1, hold = 2 }\n",
+             "measure.times", "past the end of the ramp")]:
+        error = _error(MINIMAL + "\n" + extra)
+        assert error.key == key and words in str(error), str(error)
 
 
 # --- measurement times --------------------------------------------------------------------------
