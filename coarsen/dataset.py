@@ -65,6 +65,14 @@ VARIABLES: dict[str, tuple[tuple[str, ...], str, str]] = {
                        "area of the largest domain as a fraction of the sites"),
     "seed_area": (("replica", "time"), "sites",
                   "area of the seeded domain (largest down domain overlapping the seed)"),
+    "interface_position": (("cut", "replica", "time"), "lattice spacings",
+                           "interface position along each cut (distance from the cut's "
+                           "origin to the zero of the coarse-grained order parameter)"),
+    "wall_energy": (("replica", "time"), "J",
+                    "excess energy per site on the walls of coarse-grained domains"),
+    "bulk_energy": (("replica", "time"), "J",
+                    "excess energy per site of bulk excitations (clusters below the "
+                    "smallest domain area)"),
     "snapshot": (("snapshot_time", "replica"), "1", "kept spin configurations (+1/-1)"),
 }
 
@@ -75,6 +83,7 @@ _COORDS = {
     "replica": ("1", "replica index (shot index for lab data)"),
     "snapshot_time": ("sweeps", "time of the kept configuration"),
     "estimator": ("1", "length estimator"),
+    "cut": ("1", "interface cut"),
 }
 
 
@@ -122,7 +131,8 @@ def created_now() -> str:
 
 def build_dataset(arrays: dict[str, np.ndarray], *, times, k, r, attrs: dict,
                   snapshots: np.ndarray | None = None, snapshot_times=None,
-                  extra_variables: dict | None = None) -> xr.Dataset:
+                  extra_variables: dict | None = None, extra_coords: dict | None = None,
+                  ) -> xr.Dataset:
     """Assemble the dataset of a run or of measured lab data.
 
     Parameters
@@ -141,6 +151,9 @@ def build_dataset(arrays: dict[str, np.ndarray], *, times, k, r, attrs: dict,
         Their times.
     extra_variables : dict, optional
         ``name -> (dims, values, units, long_name)`` for variables outside the contract.
+    extra_coords : dict, optional
+        ``name -> (dims, values, units, long_name)`` for further coordinates (the cuts of
+        ``interface_position``).
 
     Returns
     -------
@@ -177,6 +190,9 @@ def build_dataset(arrays: dict[str, np.ndarray], *, times, k, r, attrs: dict,
     for name, (dims, values, units, long_name) in (extra_variables or {}).items():
         data_vars[name] = xr.Variable(dims, np.asarray(values),
                                       attrs={"units": units, "long_name": long_name})
+    for name, (dims, values, units, long_name) in (extra_coords or {}).items():
+        coords[name] = xr.Variable(dims, np.asarray(values),
+                                   attrs={"units": units, "long_name": long_name})
     ds = xr.Dataset(data_vars, coords=coords)
     for name, (units, long_name) in _COORDS.items():
         if name in ds.coords:

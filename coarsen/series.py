@@ -26,9 +26,12 @@ SERIES_DIMS: dict[str, tuple[str, ...]] = {
     "domain_count": ("replica", "time"),
     "largest_domain": ("replica", "time"),
     "seed_area": ("replica", "time"),
+    "interface_position": ("cut", "replica", "time"),
+    "wall_energy": ("replica", "time"),
+    "bulk_energy": ("replica", "time"),
 }
 
-_PER_REPLICA = ("energy", "magnetization", "largest_domain")
+_PER_REPLICA = ("energy", "magnetization", "largest_domain", "wall_energy", "bulk_energy")
 
 
 class MeasurementSeries:
@@ -42,6 +45,10 @@ class MeasurementSeries:
         Measurement times.
     n_k, n_r : int
         Number of |k| shells and distance bins.
+    seeded : bool, default: False
+        Keep ``seed_area``.
+    cuts : int, default: 0
+        Keep ``interface_position`` along this many cuts (none for 0).
 
     Notes
     -----
@@ -51,7 +58,7 @@ class MeasurementSeries:
     """
 
     def __init__(self, replicas: int, n_times: int, n_k: int, n_r: int, *,
-                 seeded: bool = False):
+                 seeded: bool = False, cuts: int = 0):
         self.replicas, self.n_times, self.n_k, self.n_r = replicas, n_times, n_k, n_r
         nan = np.nan
         self.arrays = {
@@ -64,9 +71,13 @@ class MeasurementSeries:
             "length": np.full((len(ESTIMATORS), replicas, n_times), nan),
             "domain_count": np.full((replicas, n_times), -1, dtype=np.int64),
             "largest_domain": np.full((replicas, n_times), nan),
+            "wall_energy": np.full((replicas, n_times), nan),
+            "bulk_energy": np.full((replicas, n_times), nan),
         }
         if seeded:
             self.arrays["seed_area"] = np.full((replicas, n_times), -1, dtype=np.int64)
+        if cuts:
+            self.arrays["interface_position"] = np.full((cuts, replicas, n_times), nan)
 
     def store(self, index: int, measured) -> None:
         """Put the measurements of time number ``index`` into the arrays."""
@@ -89,7 +100,8 @@ class MeasurementSeries:
         """Rebuild a series from stored arrays (a checkpoint)."""
         replicas, n_times = arrays["energy"].shape
         series = cls(replicas, n_times, arrays["structure_factor"].shape[1],
-                     arrays["correlation"].shape[1], seeded="seed_area" in arrays)
+                     arrays["correlation"].shape[1], seeded="seed_area" in arrays,
+                     cuts=len(arrays.get("interface_position", ())))
         for name, value in arrays.items():
             if name in series.arrays:
                 target = series.arrays[name]

@@ -29,6 +29,7 @@ from coarsen.engine import advance, make_streams
 from coarsen.equilibrium import equilibrium_energy
 from coarsen.initial import initial_spins
 from coarsen.observables import MeasurementGrid, measure, seed_area
+from coarsen.observables.interfaces import cut_coordinates, default_cuts, interface_positions
 from coarsen.schedule import crossing_time
 from coarsen.seeded import SEEDED_PARAMETERS, seed_sites
 from coarsen.series import MeasurementSeries
@@ -105,10 +106,17 @@ def _fresh_state(spec, lattice, grid: MeasurementGrid) -> RunState:
                           order=spec.order)
     streams = make_streams(spec.seed, replicas, lattice, spec.rule, spec.update)
     series = MeasurementSeries(replicas, len(spec.times), len(grid.k), len(grid.r),
-                               seeded=_seed_region(spec) is not None)
+                               seeded=_seed_region(spec) is not None, cuts=len(_cuts(spec)))
     snapshots = np.zeros((len(spec.snapshot_times), replicas, *lattice.shape), dtype=np.int8)
     return RunState(clock=0, next_index=0, spins=spins, streams=streams, series=series,
                     snapshots=snapshots, moves=np.zeros(replicas, dtype=np.int64))
+
+
+def _cuts(spec):
+    """The interface cuts of a run: the spec's, or the seeded state's defaults, or none."""
+    if spec.cuts:
+        return spec.cuts
+    return default_cuts(spec.initial.state, spec.lattice, spec.initial.parameter_dict())
 
 
 def _seed_region(spec):
@@ -218,6 +226,7 @@ def simulate(spec, *, threads: int | None = None, checkpoint=None,
     sweeps_per_call = max(1, int(_ATTEMPTS_PER_CALL // (spec.replicas * lattice.n_sites)))
     snapshot_slot = {t: i for i, t in enumerate(spec.snapshot_times)}
     seed = _seed_region(spec)
+    cuts = _cuts(spec)
     staggering = lattice.staggering if spec.order == "neel" else None
     times = spec.times
     bar = progress_bar(progress, total=spec.final_time, initial=state.clock,
@@ -268,6 +277,11 @@ def simulate(spec, *, threads: int | None = None, checkpoint=None,
                     field = state.spins if staggering is None else state.spins * staggering
                     state.series.arrays["seed_area"][:, state.next_index] = seed_area(
                         field, lattice, seed, threads=threads)
+                if cuts:
+                    order_field = (state.spins if staggering is None
+                                   else state.spins * staggering)
+                    state.series.arrays["interface_position"][:, :, state.next_index] = (
+                        interface_positions(order_field, lattice, cuts, spec.cut_width))
                 if target in snapshot_slot:
                     state.snapshots[snapshot_slot[target]] = state.spins
                 timing["measuring"] += time.perf_counter() - start
@@ -314,11 +328,15 @@ def _dataset(spec, grid: MeasurementGrid, state: RunState) -> xr.Dataset:
         attrs["spec_file"] = str(spec.source)
     if spec.equilibrium_energy is not None:
         attrs["equilibrium_energy"] = float(spec.equilibrium_energy)
+    cuts = _cuts(spec)
+    if cuts:
+        attrs["cut_width"] = int(spec.cut_width)
     extra = {"accepted_moves": (("replica",), state.moves, "1",
                                 "accepted moves per replica over the whole run")}
     return build_dataset(arrays, times=times, k=grid.k, r=grid.r, attrs=attrs,
                          snapshots=state.snapshots, snapshot_times=spec.snapshot_times,
-                         extra_variables=extra)
+                         extra_variables=extra,
+                         extra_coords=cut_coordinates(cuts) if cuts else None)
 
 
 def run_spec(spec, output, *, threads: int | None = None, resume: bool = False,

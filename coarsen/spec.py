@@ -18,7 +18,10 @@ own keys: ``disk``/``radius``, ``square``/``side``, ``stripe``/``width``,
 spec file), ``initial.magnetization = 0.0``, ``initial.exact`` exact for the
 conserved rules and not for Glauber (see :mod:`coarsen.initial`), ``measure.times.spacing =
 "log"``, ``measure.order = "ferro"``, ``measure.snapshots = 0``, no
-``measure.equilibrium_energy``, ``ensemble.replicas = 8``.
+``measure.equilibrium_energy``, no ``measure.cuts`` (interface cuts ``[{ origin = [x, y],
+direction = [dx, dy], length, label }, ...]`` on square lattices; seeded states have default
+cuts, :mod:`coarsen.observables.interfaces`), ``measure.cut_width = 5``,
+``ensemble.replicas = 8``.
 
 Temperature: exactly one of ``value`` (T >= 0), ``relative`` (a fraction >= 0 of the model's
 critical temperature :attr:`Spec.tc`), ``points`` (``[[t0, T0], [t1, T1], ...]`` in sweeps,
@@ -69,6 +72,7 @@ from coarsen._validation import (
 from coarsen.engine import ACCEPTANCES, RULES, UPDATES, check_dynamics
 from coarsen.initial import ORDERS, InitialState, check_state
 from coarsen.lattice import BOUNDARIES, LATTICE_KINDS, Lattice
+from coarsen.observables.interfaces import DEFAULT_CUT_WIDTH, Cut, check_cut_width, parse_cuts
 from coarsen.schedule import Schedule, constant, from_points, ramp
 from coarsen.seeded import SEEDED_PARAMETERS, read_configuration, seed_centre, seed_sites
 
@@ -91,7 +95,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "temperature": ("value", "relative", "points", "relative_points", "ramp"),
     "initial": ("state", "magnetization", "exact", "radius", "side", "width", "amplitude",
                 "period", "centre", "path"),
-    "measure": ("times", "order", "snapshots", "equilibrium_energy"),
+    "measure": ("times", "order", "snapshots", "equilibrium_energy", "cuts", "cut_width"),
     "ensemble": ("replicas", "seed"),
     "field": ("value", "points", "ramp"),
 }
@@ -175,6 +179,11 @@ class Spec:
         The TOML text (stored in datasets).
     source : str or None
         The file it was read from.
+    cuts : tuple of Cut
+        Interface cuts given in ``measure.cuts`` (empty: the seeded state's defaults,
+        :func:`coarsen.observables.interfaces.default_cuts`).
+    cut_width : int
+        Band width of the cuts' coarse-grained profile (``measure.cut_width``, default 5).
     """
 
     lattice: Lattice
@@ -196,6 +205,8 @@ class Spec:
     source: str | None
     ramp_times: tuple[float, ...] = ()
     ramp_schedules: tuple[Schedule, ...] = ()
+    cuts: tuple[Cut, ...] = ()
+    cut_width: int = DEFAULT_CUT_WIDTH
 
     @property
     def h(self) -> float:
@@ -670,6 +681,8 @@ def _build(mapping: dict, source, text: str) -> Spec:
     energy = measure.get("equilibrium_energy")
     if energy is not None:
         energy = check_number(energy, "measure.equilibrium_energy", what="energy per site")
+    cuts = parse_cuts(measure["cuts"], lattice) if "cuts" in measure else ()
+    cut_width = check_cut_width(measure.get("cut_width", DEFAULT_CUT_WIDTH))
     ensemble = tables["ensemble"]
     replicas = check_integer(ensemble.get("replicas", DEFAULT_REPLICAS), "ensemble.replicas",
                              minimum=1, what="number of replicas")
@@ -683,7 +696,8 @@ def _build(mapping: dict, source, text: str) -> Spec:
                 snapshots=snapshots, snapshot_times=_snapshot_times(times, snapshots),
                 replicas=replicas, seed=seed, equilibrium_energy=energy, text=text,
                 source=None if source is None else str(source), ramp_times=ramp_times,
-                ramp_schedules=schedules if ramp_times else ())
+                ramp_schedules=schedules if ramp_times else (), cuts=cuts,
+                cut_width=cut_width)
 
 
 # --------------------------------------------------------------------------------------------

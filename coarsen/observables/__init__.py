@@ -9,19 +9,23 @@ Modules: :mod:`~coarsen.observables.geometry` (|k| and |d| of the grids),
 :mod:`~coarsen.observables.grid` (:class:`MeasurementGrid`: shells and bins),
 :mod:`~coarsen.observables.structure` (S(k), C(r), radial averages),
 :mod:`~coarsen.observables.lengths` (the four length estimators),
-:mod:`~coarsen.observables.domains` (cluster labelling) and
+:mod:`~coarsen.observables.domains` (cluster labelling, the wall/bulk energy split),
+:mod:`~coarsen.observables.interfaces` (interface positions along cuts) and
 :mod:`~coarsen.observables._measurement` (:func:`measure`, :class:`Measurements`). Every
 function that measures a stack takes ``threads`` (default ``numba.get_num_threads()``) and
 gives bitwise the same results for any value.
 """
 
 from coarsen.observables.domains import (
+    MIN_DOMAIN_AREA,
     domain_count,
     domain_labels,
     seed_area,
     domain_statistics,
+    energy_split,
     largest_domain,
 )
+from coarsen.observables.interfaces import Cut, default_cuts, interface_positions
 from coarsen.observables.lengths import (
     ESTIMATORS,
     correlation_crossing,
@@ -65,9 +69,15 @@ __all__ = [
     "domain_labels",
     "seed_area",
     "domain_statistics",
+    "energy_split",
     "largest_domain",
+    # interfaces
+    "Cut",
+    "default_cuts",
+    "interface_positions",
     # constants
     "ESTIMATORS",
+    "MIN_DOMAIN_AREA",
     "ORDERS",
     "PRECISIONS",
 ]

@@ -3,8 +3,8 @@
 :func:`measure` validates its inputs once and calls the pieces: the energy and order parameter
 (exact integer sums), S(|k|) and C(r) from one transform per configuration
 (:mod:`coarsen.observables.structure`), the four length estimators
-(:mod:`coarsen.observables.lengths`) and the domain statistics
-(:mod:`coarsen.observables.domains`). Replicas (or, for small lattices, chunks of a few
+(:mod:`coarsen.observables.lengths`) and the domain statistics with the wall/bulk split of
+the excess energy (:mod:`coarsen.observables.domains`, from one labelling). Replicas (or, for small lattices, chunks of a few
 replicas) are measured side by side on ``threads`` threads, each writing its own slots.
 """
 
@@ -52,6 +52,10 @@ class Measurements:
         Domains of both signs of the order-parameter field.
     largest_domain : ndarray of shape (R,), float64
         Area of the largest domain over the number of present sites.
+    wall_energy, bulk_energy : ndarray of shape (R,), float64
+        The excess energy per site ``2 |J| (broken bonds) / N_present`` of the order-parameter
+        field, split into domain walls and bulk excitations
+        (:func:`coarsen.observables.energy_split`).
     """
 
     energy: np.ndarray
@@ -61,6 +65,8 @@ class Measurements:
     length: np.ndarray
     domain_count: np.ndarray
     largest_domain: np.ndarray
+    wall_energy: np.ndarray
+    bulk_energy: np.ndarray
 
 
 def _check_values(spins: np.ndarray, mask) -> None:
@@ -231,6 +237,8 @@ def measure(spins: np.ndarray, lattice: Lattice, grid: MeasurementGrid, *, tempe
     correlation = np.empty((reps, len(grid.r)))
     count = np.empty(reps, dtype=np.int64)
     largest = np.empty(reps)
+    wall_bonds = np.empty(reps, dtype=np.int64)
+    bulk_bonds = np.empty(reps, dtype=np.int64)
 
     def one_chunk(part, workspace):
         chunk = spins[part]
@@ -245,7 +253,7 @@ def measure(spins: np.ndarray, lattice: Lattice, grid: MeasurementGrid, *, tempe
             order_sum = _field_sum(values)
         magnetization[part] = order_sum / n_present
         count_and_largest_into(np.ascontiguousarray(values), lattice, n_present, count[part],
-                               largest[part], workspace)
+                               largest[part], workspace, wall_bonds[part], bulk_bonds[part])
         field = workspace.array("field", values.shape, grid._real)
         np.copyto(field, values)
         radial_into(field, grid, structure_factor[part], correlation[part], workspace)
@@ -254,9 +262,11 @@ def measure(spins: np.ndarray, lattice: Lattice, grid: MeasurementGrid, *, tempe
     for_each(one_chunk, chunks, threads, lattice.n_sites * (chunks[0].stop - chunks[0].start),
              grid._workspaces)
     length = estimate_lengths(grid.r, correlation, grid.k, structure_factor, energy, reference)
+    scale = 2.0 * abs(J) / n_present
     return Measurements(energy=energy, magnetization=magnetization,
                         structure_factor=structure_factor, correlation=correlation,
-                        length=length, domain_count=count, largest_domain=largest)
+                        length=length, domain_count=count, largest_domain=largest,
+                        wall_energy=wall_bonds * scale, bulk_energy=bulk_bonds * scale)
 
 
 def _number_or_nan(value) -> float:
