@@ -10,6 +10,19 @@ Cases start from random configurations at T = 1.5 unless their name begins with 
 those first coarsen a random configuration at T = 1.0 for ``prepare_sweeps`` sweeps (not
 timed), so that domains have grown, and time the dynamics there.
 
+The ``late-<rule>-L<size>`` cases compare random-sequential and rejection-free
+updates in the late-time regime: each starts from a *prepared* configuration whose domains
+already have the size L (``domains``), a Gaussian-smoothed random field thresholded at
+zero. A field smoothed with a Gaussian of width sigma has zero crossings along a line a mean
+distance ``pi sqrt(2) sigma`` apart (Rice's formula for a Gaussian correlation
+``exp(-r^2 / 4 sigma^2)``), so sigma = L / (pi sqrt 2) gives walls L apart; each record
+reports the measured spacing as ``domain_length`` (sites per wall along x). The state then
+relaxes for ``relax_sweeps`` untimed rejection-free sweeps at the case's temperature (the
+thresholded walls are rough on the lattice scale), and both updates time the next stretch
+from that same state. Records of the rejection-free cases carry ``speedup_over_random``,
+the ratio of simulated sweeps per second to the random-sequential case of the same rule,
+size and L.
+
 Two *reference implementations*, written the way a careful user would write them without this
 package, run on the same machine so that the engine's rates can be read as ratios:
 
@@ -39,7 +52,7 @@ import numba
 import numpy as np
 
 from coarsen.engine import advance, make_streams
-from coarsen.kernels import checkerboard, glauber, kawasaki
+from coarsen.kernels import checkerboard, glauber, kawasaki, rejection_free
 from coarsen.kernels._options import jit_serial
 from coarsen.lattice import Lattice
 
@@ -93,6 +106,11 @@ class Case:
         Untimed sweeps from the random state before timing (``late-`` cases).
     implementation : {"engine", "reference-numpy", "reference-numba"}, default: "engine"
         What is timed.
+    domains : int, default: 0
+        Start from a prepared configuration with domains of this size (``late-<rule>-L``
+        cases; 0: a random or coarsened start as above).
+    relax_sweeps : int, default: 0
+        Untimed rejection-free sweeps of the prepared configuration before timing.
     """
 
     name: str
@@ -109,6 +127,8 @@ class Case:
     prepare_sweeps: int = 0
     quick_prepare_sweeps: int = 0
     implementation: str = "engine"
+    domains: int = 0
+    relax_sweeps: int = 0
 
     def family(self) -> tuple[str, str, str]:
         """Which compiled code the case runs: (implementation, rule, update)."""
@@ -121,6 +141,27 @@ def _engine_case(rule, update, lattice, size, quick_size, replicas, threads, swe
     name = f"{prefix}{rule}-{update}-{lattice}-{size}-r{replicas}-t{threads}"
     return Case(name, rule, update, lattice, size, quick_size, replicas, threads, sweeps,
                 quick_sweeps, **extra)
+
+
+_SQUARE_TC = 2.0 / math.log(1.0 + math.sqrt(2.0))
+#: Late-time comparison: (rule, T / Tc, {L: (random sweeps, rejection-free sweeps)} in the
+#: full run; the quick run uses a 256^2 lattice and a quarter of the sweeps (at least 1).
+_LATE_COMPARISON = (
+    ("glauber", 0.3, {32: (4, 40), 64: (4, 120), 128: (4, 400)}),
+    ("kawasaki", 0.5, {32: (3, 40), 64: (3, 100), 128: (3, 200)}),
+)
+
+
+def _late_cases() -> tuple[Case, ...]:
+    cases = []
+    for rule, fraction, sizes in _LATE_COMPARISON:
+        for length, stretches in sizes.items():
+            for update, sweeps in zip(("random", "rejection-free"), stretches):
+                cases.append(Case(f"late-{rule}-L{length}", rule, update, "square",
+                                  1024, 256, 1, 1, sweeps, max(1, sweeps // 4),
+                                  temperature=round(fraction * _SQUARE_TC, 4),
+                                  domains=length, relax_sweeps=20))
+    return tuple(cases)
 
 
 #: The benchmark cases, in the order they run: references first, so that engine cases of
@@ -143,6 +184,7 @@ CASES: tuple[Case, ...] = (
                  prepare_sweeps=1000, quick_prepare_sweeps=200),
     _engine_case("kawasaki", "random", "square", 256, 128, 1, 1, 400, 150, temperature=1.0,
                  prepare_sweeps=3000, quick_prepare_sweeps=300),
+    *_late_cases(),
 )
 
 
@@ -193,6 +235,49 @@ def _random_spins(rng: np.random.Generator, replicas: int, shape) -> np.ndarray:
     return np.where(rng.random((replicas, *shape)) < 0.5, np.int8(1), np.int8(-1))
 
 
+def prepared_domains(rng: np.random.Generator, replicas: int, shape, length: float) -> np.ndarray:
+    """Configurations with domains of size ``length``: a periodic Gaussian-smoothed white
+    noise field (width ``length / (pi sqrt 2)``, smoothed in Fourier space) thresholded at 0.
+    """
+    from scipy import ndimage
+
+    sigma = length / (math.pi * math.sqrt(2.0))
+    out = np.empty((replicas, *shape), dtype=np.int8)
+    for r in range(replicas):
+        noise = np.fft.rfftn(rng.standard_normal(shape))  # last axis halved
+        axes = tuple(range(len(shape)))
+        smooth = np.fft.irfftn(ndimage.fourier_gaussian(noise, sigma, n=shape[-1]), s=shape,
+                               axes=axes)
+        out[r] = np.where(smooth >= 0, np.int8(1), np.int8(-1))
+    return out
+
+
+def wall_spacing(spins: np.ndarray) -> float:
+    """Mean distance between domain walls along x: sites per unlike bond in x."""
+    unlike = np.count_nonzero(spins != np.roll(spins, 1, axis=-1))
+    return spins.size / unlike if unlike else math.inf
+
+
+_PREPARED: dict = {}
+
+
+def _prepared_start(case: Case, lattice: Lattice, seed: int) -> np.ndarray:
+    """The relaxed prepared state of a ``domains`` case, shared by both updates."""
+    key = (case.rule, case.domains, lattice.size, case.replicas, case.temperature,
+           case.relax_sweeps, seed)
+    if key not in _PREPARED:
+        _PREPARED.clear()
+        spins = prepared_domains(np.random.default_rng(seed), case.replicas, lattice.shape,
+                                 case.domains)
+        if case.relax_sweeps:
+            streams = make_streams(seed + 1, case.replicas, lattice, case.rule,
+                                   "rejection-free")
+            advance(spins, streams, lattice, case.relax_sweeps, case.temperature,
+                    rule=case.rule, update="rejection-free")
+        _PREPARED[key] = spins
+    return _PREPARED[key].copy()
+
+
 def _runner(case: Case, lattice: Lattice, spins: np.ndarray, seed: int):
     """A function ``run(sweeps)`` advancing ``spins`` in place with the case's implementation."""
     if case.implementation == "engine":
@@ -222,6 +307,9 @@ def _dispatchers(family) -> list:
         return [_reference_numba]
     if implementation == "reference-numpy":
         return []
+    if update == "rejection-free":
+        return [rejection_free.glauber_rejection_free if rule == "glauber"
+                else rejection_free.kawasaki_rejection_free]
     if rule == "kawasaki":
         return [kawasaki.kawasaki_local]
     if update == "checkerboard":
@@ -314,7 +402,11 @@ def run_case(case: Case, *, quick: bool = False, max_threads: int | None = None,
     prepare = case.quick_prepare_sweeps if quick else case.prepare_sweeps
     threads = 1 if case.implementation != "engine" else min(case.threads, max_threads)
     lattice = Lattice(case.lattice, size)
-    spins = _random_spins(np.random.default_rng(seed), case.replicas, lattice.shape)
+    if case.domains:
+        spins = _prepared_start(case, lattice, seed)
+    else:
+        spins = _random_spins(np.random.default_rng(seed), case.replicas, lattice.shape)
+    domain_length = wall_spacing(spins)
     run = _runner(case, lattice, spins, seed)
     previous = numba.get_num_threads()
     numba.set_num_threads(threads)
@@ -332,7 +424,7 @@ def run_case(case: Case, *, quick: bool = False, max_threads: int | None = None,
     finally:
         numba.set_num_threads(previous)
     attempts = case.replicas * lattice.n_sites * sweeps
-    return {
+    record = {
         "case": case.name,
         "rule": case.rule,
         "update": case.update,
@@ -350,6 +442,10 @@ def run_case(case: Case, *, quick: bool = False, max_threads: int | None = None,
         "prepare_sweeps": prepare,
         "quick": bool(quick),
     }
+    if case.domains:
+        record["domains"] = case.domains
+        record["domain_length"] = domain_length
+    return record
 
 
 def _reference_for(record: dict, references: dict) -> dict | None:
@@ -398,12 +494,21 @@ def _records(cases: list[Case], quick: bool, max_threads: int,
              repeats: int | None) -> Iterator[dict]:
     first_calls = measure_first_calls(cases)
     references: dict = {}
+    random_late: dict = {}
     for case in cases:
         record = run_case(case, quick=quick, max_threads=max_threads, repeats=repeats)
         first = first_calls[case.family()]
         record["compile_seconds"] = first["seconds"]
         record["compile_cached"] = first["cached"]
-        if case.implementation != "engine" and not record["prepare_sweeps"]:
+        if case.domains:
+            key = (case.rule, case.domains, record["size"], case.replicas)
+            if case.update == "random":
+                random_late[key] = record
+            elif key in random_late:
+                record["random_case"] = random_late[key]["case"]
+                record["speedup_over_random"] = (record["sweeps_per_second"]
+                                                 / random_late[key]["sweeps_per_second"])
+        elif case.implementation != "engine" and not record["prepare_sweeps"]:
             references[(record["rule"], record["update"], record["lattice"],
                         record["size"])] = record
         else:
@@ -431,7 +536,7 @@ def format_header() -> str:
 def format_row(record: dict) -> str:
     """One aligned line of the text table for a record of :func:`run_benchmark`."""
     dims = {"chain": 1, "square": 2, "triangular": 2, "cubic": 3}[record["lattice"]]
-    ratio = record.get("speedup_over_reference")
+    ratio = record.get("speedup_over_reference", record.get("speedup_over_random"))
     first = record.get("compile_seconds")
     if first is not None and record.get("compile_cached"):
         first_text = f"{first:.2f}c"
@@ -460,7 +565,8 @@ _TABLE_NOTES = (
     "Matt/s: millions of attempted moves per second, all replicas together; best of the timed "
     "repeats.",
     "x ref: ratio of Matt/s to the reference implementation of the same rule, update and "
-    "size.",
+    "size; for late-*-rejection-free cases, ratio of sweeps/s to the random-sequential case "
+    "of the same rule and L.",
     "first s: seconds of the first call of the case's kernels (compilation, or a cache load "
     "when marked c), not included in the rates.",
 )

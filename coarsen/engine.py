@@ -33,6 +33,8 @@ from coarsen.kernels.geometry import KIND_CODES
 from coarsen.kernels.glauber import glauber_random_sequential
 from coarsen.kernels.kawasaki import kawasaki_local, kawasaki_nonlocal
 from coarsen.lattice import Lattice
+from coarsen.rejection_free import RULES as REJECTION_FREE_RULES
+from coarsen.rejection_free import advance_events
 from coarsen.rng import check_streams, spawn_streams
 
 __all__ = [
@@ -51,7 +53,7 @@ __all__ = [
 
 RULES = ("glauber", "kawasaki", "kawasaki-nonlocal")
 ACCEPTANCES = ("heat-bath", "metropolis")
-UPDATES = ("random", "checkerboard")
+UPDATES = ("random", "checkerboard", "rejection-free")
 
 #: Row blocks of the sublattice update: each has its own random stream, so this number (not
 #: the thread count) fixes how work can be shared between threads.
@@ -75,7 +77,8 @@ def check_dynamics(lattice: Lattice, rule: str = "glauber", acceptance: str = "h
     """Raise ValueError if the combination of lattice, rule, acceptance and update is invalid.
 
     Sublattice updates exist for Glauber dynamics only and need a lattice whose sizes split
-    into sublattices (:meth:`Lattice.colouring_error`).
+    into sublattices (:meth:`Lattice.colouring_error`); rejection-free updates exist for
+    Glauber and nearest-neighbour Kawasaki dynamics.
     """
     if not isinstance(lattice, Lattice):
         raise TypeError(f"lattice: expected a coarsen.Lattice, got {type(lattice).__name__}")
@@ -91,6 +94,12 @@ def check_dynamics(lattice: Lattice, rule: str = "glauber", acceptance: str = "h
         problem = lattice.colouring_error()
         if problem:
             raise ValueError(problem)
+    if update == "rejection-free" and rule not in REJECTION_FREE_RULES:
+        raise ValueError(
+            f"update: 'rejection-free' updates apply to rules "
+            f"{' and '.join(map(repr, REJECTION_FREE_RULES))}, not {rule!r}; use update "
+            "'random' for nonlocal exchanges"
+        )
 
 
 def _check_spin_values(spins, name="spins") -> None:
@@ -117,15 +126,6 @@ def _temperatures(temperature, sweeps) -> np.ndarray:
     return t
 
 
-def _finite(value, name) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise TypeError(f"{name}: {value!r} is not a number") from None
-    if not math.isfinite(v):
-        raise ValueError(f"{name}: {value!r} is not finite")
-    return v
-
 def _fields(field, sweeps) -> np.ndarray:
     try:
         h = np.asarray(field, dtype=float)
@@ -149,6 +149,15 @@ def _protocol_pairs(temps: np.ndarray, fields: np.ndarray) -> list[tuple[float, 
     size = max(temps.size, fields.size)
     return list(zip(np.broadcast_to(temps, size).tolist(), np.broadcast_to(fields, size).tolist()))
 
+
+def _finite(value, name) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise TypeError(f"{name}: {value!r} is not a number") from None
+    if not math.isfinite(v):
+        raise ValueError(f"{name}: {value!r} is not finite")
+    return v
 
 
 # --------------------------------------------------------------------------------------------
@@ -336,21 +345,27 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
         Single-spin flips (non-conserved), nearest-neighbour exchanges (conserved), or
         exchanges of a random up spin with a random down spin anywhere (globally conserved).
     acceptance : {"heat-bath", "metropolis"}, default: "heat-bath"
-    update : {"random", "checkerboard"}, default: "random"
-        Random-sequential (N attempts at uniformly chosen sites or bonds per sweep) or
-        sublattice sweeps (Glauber only). Metropolis acceptance with sublattice sweeps
-        forces every zero-energy flip, which makes the dynamics non-ergodic on small or
-        one-dimensional lattices: on a ring it conserves the difference of the bond sums of
-        even and odd bonds, so from a random start it does not reach equilibrium (see
-        ``tests/validation/test_enumeration.py``). Use heat-bath acceptance or random
-        updates there.
-    J, h : float, default: 1.0, 0.0
-        Coupling (either sign) and uniform field. Kawasaki exchanges do not depend on h.
+    update : {"random", "checkerboard", "rejection-free"}, default: "random"
+        Random-sequential (N attempts at uniformly chosen sites or bonds per sweep),
+        sublattice sweeps (Glauber only), or the rejection-free n-fold way in continuous
+        time (Glauber and Kawasaki; the same dynamics as random-sequential updates with one
+        sweep as the unit of time, see :mod:`coarsen.rejection_free`). Metropolis
+        acceptance with sublattice sweeps forces every zero-energy flip, which makes the
+        dynamics non-ergodic on small or one-dimensional lattices: on a ring it conserves
+        the difference of the bond sums of even and odd bonds, so from a random start it
+        does not reach equilibrium (see ``tests/validation/test_enumeration.py``). Use
+        heat-bath acceptance or random updates there.
+    J : float, default: 1.0
+        Coupling (either sign).
+    h : float or ndarray of shape (sweeps,), default: 0.0
+        Uniform field, constant or one value per sweep. Kawasaki exchanges do not depend
+        on h.
 
     Returns
     -------
     ndarray of shape (R,) and dtype int64
-        Accepted moves per replica (spins changed for Glauber, exchanges for Kawasaki).
+        Accepted moves per replica (spins changed for Glauber, exchanges for Kawasaki; for
+        rejection-free updates, the events).
 
     Raises
     ------
@@ -387,6 +402,8 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
         if update == "random":
             glauber_random_sequential(flat, streams[:, 0], tables, dims, kind, periodic,
                                       sweeps, moves)
+        elif update == "rejection-free":
+            advance_events(flat, streams[:, 0], tables, lattice, rule, sweeps, moves)
         elif lattice.kind == "triangular":
             blocks = _row_blocks(_rows(lattice))
             glauber_checkerboard_triangular(flat, streams, tables, dims, periodic, blocks,
@@ -402,6 +419,9 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
             merge_colours(halves, parity, rows_view)
     else:
         tables = np.stack([_limits(exchange_probabilities(t, z, J, acceptance)) for t in temps])
+        if update == "rejection-free":
+            advance_events(flat, streams[:, 0], tables, lattice, rule, sweeps, moves)
+            return moves
         kernel = kawasaki_local if rule == "kawasaki" else kawasaki_nonlocal
         kernel(flat, streams[:, 0], tables, _offsets(lattice), dims, kind, periodic, sweeps,
                moves)

@@ -422,11 +422,8 @@ def _dynamics(table: dict, lattice: Lattice):
                         "dynamics.rule", what="rule")
     acceptance = check_choice(table.get("acceptance", "heat-bath"), ACCEPTANCES,
                               "dynamics.acceptance", what="acceptance")
-    update = table.get("update", "random")
-    if update == "rejection-free":
-        _fail(f"{update!r} updates are not available in this version; choose one of "
-              f"{', '.join(map(repr, UPDATES))}", "dynamics.update", update, UPDATES)
-    update = check_choice(update, UPDATES, "dynamics.update", what="update")
+    update = check_choice(table.get("update", "random"), UPDATES, "dynamics.update",
+                          what="update")
     try:
         check_dynamics(lattice, rule, acceptance, update)
     except ValueError as error:

@@ -267,7 +267,7 @@ def test_non_numeric_temperature_rejected_naming_the_parameter(temperature):
 
 @pytest.mark.parametrize("option, value", [("rule", "metropolis"), ("rule", "Glauber"),
                                            ("acceptance", "glauber"), ("acceptance", None),
-                                           ("update", "sequential"), ("update", "rejection-free")])
+                                           ("update", "sequential"), ("update", "n-fold")])
 def test_unknown_choices_rejected(option, value):
     spins, streams, lattice = _setup()
     with pytest.raises(ValueError, match=rf"^{option}: {value!r} is not one of "):

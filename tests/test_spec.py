@@ -462,11 +462,15 @@ def test_chain_metropolis_checkerboard_is_refused_as_non_ergodic():
     parse_spec(_edit("size = [64]", 'size = [64]\nboundary = "open"', text))
 
 
-def test_rejection_free_is_not_available_yet():
-    error = _error(_edit('rule = "glauber"', 'rule = "glauber"\nupdate = "rejection-free"'))
+def test_rejection_free_updates_for_glauber_and_kawasaki_only():
+    for rule in ("glauber", "kawasaki"):
+        spec = parse_spec(_edit('rule = "glauber"',
+                                f'rule = "{rule}"\nupdate = "rejection-free"'))
+        assert spec.update == "rejection-free" and spec.rule == rule
+    error = _error(_edit('rule = "glauber"',
+                         'rule = "kawasaki-nonlocal"\nupdate = "rejection-free"'))
     assert error.key == "dynamics.update" and error.value == "rejection-free"
-    assert "not available in this version" in str(error)
-    assert "'random', 'checkerboard'" in str(error)
+    assert "'glauber' and 'kawasaki'" in str(error)
 
 
 def test_neel_order_needs_a_bipartite_lattice():

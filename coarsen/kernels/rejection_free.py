@@ -1,0 +1,578 @@
+"""Rejection-free continuous-time dynamics: the n-fold way for Glauber flips and Kawasaki exchanges.
+
+The method is that of Bortz, Kalos & Lebowitz, J. Comput. Phys. 17, 10 (1975): every possible
+move belongs to a *class* of moves with one common rate; a class is chosen with probability
+proportional to its total rate, a move uniformly within it, the clock advances by an
+exponential waiting time of the total rate, and only the classes of the moves whose rate the
+event changed are updated (O(1) per event).
+
+Moves and classes
+-----------------
+Glauber: the moves are the N sites. A site's class is ``2 (f + z) + (s + 1) / 2`` for spin s
+and neighbour sum f in -z..z (z the lattice's coordination; an open edge only narrows the
+range of f), so ``2 (2 z + 1)`` classes. Its rate per sweep is the probability that one
+random-sequential attempt at it changes the spin: ``(limit[0, f + z] + 1) / 2**31`` for s = -1
+and ``1 - (limit[1, f + z] + 1) / 2**31`` for s = +1, with the integer thresholds of the
+random-sequential kernel (``coarsen.engine.up_probabilities``), so both updates realise the
+same probabilities to the last bit.
+
+Kawasaki: the moves are the bond slots ``e = a * zf + j`` (site a, forward direction j of
+``zf = z / 2``, partner ``b = a + forward[j]``); only slots joining unlike spins are in a
+class, the one of ``q + 2 z`` where ``q = s_a (f_a - f_b) + 2`` and the exchange changes the
+energy by ``2 J q`` (h cancels: an up and a down spin trade places). A random-sequential
+attempt picks site a with probability 1/N and one of its z directions with probability 1/z,
+so in one sweep (N attempts) a bond is tried 2/z times on average (once from each end): a
+slot's rate per sweep is ``(2 / z) (limit[q + 2 z] + 1) / 2**31``, which makes one unit of
+this clock one random-sequential sweep.
+
+Rates are kept as integers in units of 2**-31 per sweep (Glauber) or (2/z) 2**-31 per sweep
+(Kawasaki), so class totals and their sums are exact int64 numbers.
+
+Uniform choice within a class, in site order
+--------------------------------------------
+Each class is a bit set over the moves with counts per 2**10, 2**14 and 2**18 moves; the k-th
+member in increasing move index is found by scanning those counts and then 16 words. So the
+choice depends only on the configuration and the random numbers, never on the order in
+which moves entered a class: the class sets are rebuilt from the spins at the start of every
+call, and a run split into calls of any length gives the same bits. Memory layout for speed:
+the 16 words of one class and level-1 group are contiguous (a short scan), the words of all
+classes of one group are adjacent (a move changing class touches few cache lines), the
+counts are stored class by class.
+Within a call a site carries one int8 *code* ``2 (f + z) + (s + 1) / 2``, its spin and
+neighbour sum together (for Glauber, its class); the spins are written back at the end.
+
+Time and random words
+---------------------
+Time is continuous within a sweep and every sweep [t, t + 1) starts afresh: by the
+memoryless property of the exponential distribution, drawing the next event time at t from
+the rates in force then is exact, so nothing is carried between sweeps but the spins and the
+stream. The rates of a sweep come from its temperature table (one per sweep; the
+temperature and field are constant within a sweep, the time step of a changing protocol).
+Each event consumes two 64-bit draws of the replica's stream, taken in order from blocks of
+``LANES`` draws: the waiting time ``-ln(((u >> 11) + 1) 2**-53) / R`` (R the total rate per
+sweep) and then, if the event falls before the end of the sweep, the target
+``floor(((v >> 11) 2**-53) R_int)`` in the cumulative integer rates of the classes
+(R_int = sum over classes of count x rate); the class holding the target is chosen and the
+member ``(target - rates of the classes before) // rate`` of it. The draws left in the block
+at the end of a sweep are discarded. A sweep with total rate zero consumes nothing. The
+state measured at time t is thus the state after the last event before t.
+"""
+
+import numba
+import numpy as np
+from numba import prange
+
+from coarsen.kernels._options import jit_inline, jit_parallel, jit_serial
+from coarsen.kernels.random_words import LANES, fill_draws
+
+__all__: list[str] = []
+
+#: Rates are integers in units of 2**-31 (of the per-move probability of one attempt).
+RATE_ONE = 2**31
+_UNIFORM = 2.0**-53
+#: log2 of the moves per word and per count of each level (fan-out 16 above the words).
+_WORD_BITS = 6
+_LEVEL1_BITS = 10
+_LEVEL2_BITS = 14
+_LEVEL3_BITS = 18
+#: Bit of a site code that marks the sites touched by a Kawasaki exchange.
+_MARK = 64
+
+
+@numba.extending.intrinsic
+def _popcount(typingctx, word):
+    """Number of set bits of a uint64 (LLVM ``ctpop``)."""
+    sig = numba.core.types.uint64(numba.core.types.uint64)
+
+    def codegen(context, builder, signature, args):
+        return builder.ctpop(args[0])
+
+    return sig, codegen
+
+
+@numba.extending.intrinsic
+def _trailing_zeros(typingctx, word):
+    """Index of the lowest set bit of a non-zero uint64 (LLVM ``cttz``)."""
+    sig = numba.core.types.uint64(numba.core.types.uint64)
+
+    def codegen(context, builder, signature, args):
+        from llvmlite import ir
+
+        return builder.cttz(args[0], ir.Constant(ir.IntType(1), 0))
+
+    return sig, codegen
+
+
+# --------------------------------------------------------------------------------------------
+# class sets: a bit set per class with three levels of counts
+# --------------------------------------------------------------------------------------------
+@jit_serial
+def new_class_sets(n_classes, n_moves):
+    """Empty class sets for ``n_moves`` moves:
+    (bits, counts1, counts2, counts3, counts).
+
+    ``bits[g, c, i]`` holds moves 64 w .. 64 w + 63 of class c, w = 16 g + i (the 16 words
+    of one class and level-1 group are contiguous); ``countsL[c, g]`` counts the
+    members of class c among moves ``g 2**b_L`` .. ``(g + 1) 2**b_L - 1`` (b_L = 10, 14, 18
+    for L = 1, 2, 3); ``counts[c]`` all members of class c.
+    """
+    bits = np.zeros(((n_moves >> _LEVEL1_BITS) + 1, n_classes, 16), dtype=np.uint64)
+    counts1 = np.zeros((n_classes, (n_moves >> _LEVEL1_BITS) + 1), dtype=np.int32)
+    counts2 = np.zeros((n_classes, (n_moves >> _LEVEL2_BITS) + 1), dtype=np.int32)
+    counts3 = np.zeros((n_classes, (n_moves >> _LEVEL3_BITS) + 1), dtype=np.int32)
+    counts = np.zeros(n_classes, dtype=np.int64)
+    return bits, counts1, counts2, counts3, counts
+
+
+@jit_inline
+def _insert(sets, move, c):
+    bits, counts1, counts2, counts3, counts = sets
+    bits[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] |= (np.uint64(1)
+                                                                 << np.uint64(move & 63))
+    counts1[c, move >> _LEVEL1_BITS] += 1
+    counts2[c, move >> _LEVEL2_BITS] += 1
+    counts3[c, move >> _LEVEL3_BITS] += 1
+    counts[c] += 1
+
+
+@jit_inline
+def _delete(sets, move, c):
+    bits, counts1, counts2, counts3, counts = sets
+    bits[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] &= ~(np.uint64(1)
+                                                                  << np.uint64(move & 63))
+    counts1[c, move >> _LEVEL1_BITS] -= 1
+    counts2[c, move >> _LEVEL2_BITS] -= 1
+    counts3[c, move >> _LEVEL3_BITS] -= 1
+    counts[c] -= 1
+
+
+@jit_inline
+def _move(sets, move, old, new):
+    """Move ``move`` from class ``old`` to class ``new`` (either may be -1: no class)."""
+    if old != new:
+        if old >= 0:
+            _delete(sets, move, old)
+        if new >= 0:
+            _insert(sets, move, new)
+
+
+@jit_serial
+def _select(sets, c, k):
+    """The move of rank ``k`` (0-based, in increasing move index) in class ``c``."""
+    bits, counts1, counts2, counts3, counts = sets
+    j = 0
+    while k >= counts3[c, j]:
+        k -= counts3[c, j]
+        j += 1
+    j <<= 4
+    while k >= counts2[c, j]:
+        k -= counts2[c, j]
+        j += 1
+    j <<= 4
+    while k >= counts1[c, j]:
+        k -= counts1[c, j]
+        j += 1
+    i = 0
+    while True:
+        ones = np.int64(_popcount(bits[j, c, i]))
+        if k < ones:
+            break
+        k -= ones
+        i += 1
+    word = bits[j, c, i]
+    for _ in range(k):
+        word &= word - np.uint64(1)
+    return (((j << 4) + i) << _WORD_BITS) + np.int64(_trailing_zeros(word))
+
+
+@jit_serial
+def _differences(a, b):
+    """Number of arrays that differ between two class-set tuples (0 when identical)."""
+    bad = 0
+    if not np.array_equal(a[0], b[0]):
+        bad += 1
+    if not np.array_equal(a[1], b[1]):
+        bad += 1
+    if not np.array_equal(a[2], b[2]):
+        bad += 1
+    if not np.array_equal(a[3], b[3]):
+        bad += 1
+    if not np.array_equal(a[4], b[4]):
+        bad += 1
+    return bad
+
+
+# --------------------------------------------------------------------------------------------
+# geometry, site codes, rates, random draws
+# --------------------------------------------------------------------------------------------
+@jit_inline
+def _neighbour(x, y, z, k, forward, nx, ny, nz, periodic):
+    """(index, x, y, z) of the neighbour in direction k (k < zf: +forward[k], else
+    -forward[k - zf]); index -1 across an open edge."""
+    zf = forward.shape[0]
+    if k < zf:
+        xn = x + forward[k, 0]
+        yn = y + forward[k, 1]
+        zn = z + forward[k, 2]
+    else:
+        xn = x - forward[k - zf, 0]
+        yn = y - forward[k - zf, 1]
+        zn = z - forward[k - zf, 2]
+    if periodic:
+        xn = xn + nx if xn < 0 else (xn - nx if xn >= nx else xn)
+        yn = yn + ny if yn < 0 else (yn - ny if yn >= ny else yn)
+        zn = zn + nz if zn < 0 else (zn - nz if zn >= nz else zn)
+    elif not ((0 <= xn < nx) and (0 <= yn < ny) and (0 <= zn < nz)):
+        return np.int64(-1), xn, yn, zn
+    return (zn * ny + yn) * nx + xn, xn, yn, zn
+
+
+@jit_inline
+def _coordinates(site, nx, ny, nz):
+    rest = site // nx
+    x = site - rest * nx
+    if nz == 1:
+        return x, rest, rest - rest
+    plane = rest // ny
+    return x, rest - plane * ny, plane
+
+
+@jit_serial
+def site_codes(spins, forward, dims, periodic):
+    """Code ``2 (f + z) + (s + 1) / 2`` of every site (spin s, neighbour sum f), int8."""
+    nx = dims[0]
+    ny = dims[1]
+    nz = dims[2]
+    z = 2 * forward.shape[0]
+    n_sites = spins.shape[0]
+    codes = np.empty(n_sites, dtype=np.int8)
+    for i in range(n_sites):
+        x, y, zc = _coordinates(i, nx, ny, nz)
+        f = 0
+        for k in range(z):
+            n = _neighbour(x, y, zc, k, forward, nx, ny, nz, periodic)[0]
+            if n >= 0:
+                f += spins[n]
+        codes[i] = 2 * (f + z) + ((spins[i] + 1) >> 1)
+    return codes
+
+
+@jit_serial
+def _write_spins(codes, spins):
+    for i in range(codes.shape[0]):
+        spins[i] = 2 * (codes[i] & 1) - 1
+
+
+@jit_inline
+def _next_draw(state, buffer, used):
+    """The next 64-bit draw and the new count of used draws of ``buffer``."""
+    if used == LANES:
+        fill_draws(state, buffer, 1)
+        used = 0
+    return buffer[used], used + 1
+
+
+@jit_inline
+def _pick(counts, rates, total, draw):
+    """(class, rank within it) of the event that the uniform ``draw`` selects."""
+    target = np.int64(np.float64(draw >> np.uint64(11)) * _UNIFORM * np.float64(total))
+    if target >= total:
+        target = total - 1
+    c = 0
+    below = np.int64(0)
+    while True:
+        weight = counts[c] * rates[c]
+        if target < below + weight:
+            break
+        below += weight
+        c += 1
+    return c, (target - below) // rates[c]
+
+
+@jit_inline
+def _total_rate(counts, rates):
+    total = np.int64(0)
+    for c in range(counts.shape[0]):
+        total += counts[c] * rates[c]
+    return total
+
+
+@jit_inline
+def _waiting_time(draw, scale, total):
+    """Exponential waiting time of total integer rate ``total`` (``scale`` units per sweep)."""
+    return -np.log((np.float64(draw >> np.uint64(11)) + 1.0) * _UNIFORM) * scale / total
+
+
+# --------------------------------------------------------------------------------------------
+# Glauber
+# --------------------------------------------------------------------------------------------
+@jit_serial
+def glauber_classes(codes, n_classes):
+    """Class sets of Glauber flips built from scratch: site i in class ``codes[i]``."""
+    sets = new_class_sets(n_classes, codes.shape[0])
+    for i in range(codes.shape[0]):
+        _insert(sets, i, np.int64(codes[i]))
+    return sets
+
+
+@jit_serial
+def _glauber_rates(limits, rates):
+    """Integer flip rates of the classes from one table of up-thresholds (2, 2 z + 1)."""
+    for f in range(limits.shape[1]):
+        rates[2 * f] = np.int64(limits[0, f]) + 1
+        rates[2 * f + 1] = RATE_ONE - (np.int64(limits[1, f]) + 1)
+
+
+@jit_serial
+def _glauber_replica(spins, state, up_limits, forward, dims, periodic, sweeps, verify):
+    """Advance one replica; returns (flips, class-set mismatches found by ``verify``)."""
+    nx = dims[0]
+    ny = dims[1]
+    nz = dims[2]
+    z = 2 * forward.shape[0]
+    n_classes = up_limits.shape[1] * up_limits.shape[2]
+    codes = site_codes(spins, forward, dims, periodic)
+    sets = glauber_classes(codes, n_classes)
+    counts = sets[4]
+    rates = np.zeros(n_classes, dtype=np.int64)
+    buffer = np.empty(LANES, dtype=np.uint64)
+    n_tables = up_limits.shape[0]
+    flips = 0
+    mismatches = 0
+    for t in range(sweeps):
+        _glauber_rates(up_limits[min(t, n_tables - 1)], rates)
+        used = LANES
+        clock = 0.0
+        total = _total_rate(counts, rates)
+        while total > 0:
+            u, used = _next_draw(state, buffer, used)
+            clock += _waiting_time(u, np.float64(RATE_ONE), np.float64(total))
+            if clock >= 1.0:
+                break
+            v, used = _next_draw(state, buffer, used)
+            c, rank = _pick(counts, rates, total, v)
+            site = _select(sets, c, rank)
+            _move(sets, site, c, c ^ 1)
+            codes[site] = c ^ 1
+            total += rates[c ^ 1] - rates[c]
+            # the neighbour sums change by twice the new spin: codes by 4 s
+            delta = 4 * (2 * ((c ^ 1) & 1) - 1)
+            x, y, zc = _coordinates(site, nx, ny, nz)
+            for k in range(z):
+                n = _neighbour(x, y, zc, k, forward, nx, ny, nz, periodic)[0]
+                if n >= 0:
+                    old = np.int64(codes[n])
+                    _move(sets, n, old, old + delta)
+                    codes[n] = old + delta
+                    total += rates[old + delta] - rates[old]
+            flips += 1
+        if verify:
+            _write_spins(codes, spins)
+            fresh = site_codes(spins, forward, dims, periodic)
+            mismatches += _differences(sets, glauber_classes(fresh, n_classes))
+            if not np.array_equal(codes, fresh):
+                mismatches += 1
+    _write_spins(codes, spins)
+    return flips, mismatches
+
+
+@jit_parallel
+def glauber_rejection_free(spins, states, up_limits, forward, dims, periodic, sweeps, flips,
+                           verify, mismatches):
+    """Advance every replica by ``sweeps`` sweeps of rejection-free Glauber dynamics, in place.
+
+    Parameters
+    ----------
+    spins : ndarray of shape (R, N) and dtype int8
+        Flat configurations, modified in place.
+    states : ndarray of shape (R, 4 * LANES) and dtype uint64
+        One stream per replica, advanced in place.
+    up_limits : ndarray of shape (n_tables, 2, 2 z + 1) and dtype int32
+        The thresholds of the random-sequential kernel; table t is used in sweep t (the last
+        one for later sweeps).
+    forward : ndarray of shape (z / 2, 3) and dtype int64
+        Forward neighbour offsets (dx, dy, dz) (``Lattice.forward_offsets``).
+    dims : ndarray of shape (3,) and dtype int64
+        (nx, ny, nz), 1 for unused axes.
+    periodic : bool
+        Periodic (True) or open boundaries.
+    sweeps : int
+        Number of sweeps (units of time).
+    flips : ndarray of shape (R,) and dtype int64
+        Incremented by the number of spins flipped.
+    verify : bool
+        Rebuild the class sets from scratch after every sweep and compare (debug check).
+    mismatches : ndarray of shape (R,) and dtype int64
+        Incremented by the number of differing arrays found by ``verify``.
+    """
+    for r in prange(spins.shape[0]):
+        f, m = _glauber_replica(spins[r], states[r], up_limits, forward, dims, periodic,
+                                sweeps, verify)
+        flips[r] += f
+        mismatches[r] += m
+
+
+# --------------------------------------------------------------------------------------------
+# Kawasaki
+# --------------------------------------------------------------------------------------------
+@jit_inline
+def _bond_class(code_a, code_b, z):
+    """Class ``q + 2 z`` of exchanging two sites with these (unmarked) codes, -1 if alike."""
+    if (code_a ^ code_b) & 1 == 0:
+        return np.int64(-1)
+    s_a = 2 * np.int64(code_a & 1) - 1
+    return s_a * (np.int64(code_a >> 1) - np.int64(code_b >> 1)) + 2 + 2 * z
+
+
+@jit_serial
+def kawasaki_classes(codes, forward, dims, periodic, n_classes):
+    """Class sets of Kawasaki exchanges built from scratch, over the ``N * zf`` bond slots
+    (slot ``a * zf + j`` joins a and its neighbour at ``forward[j]``; slots across an open
+    edge and between equal spins are in no class)."""
+    nx = dims[0]
+    ny = dims[1]
+    nz = dims[2]
+    zf = forward.shape[0]
+    z = 2 * zf
+    n_sites = codes.shape[0]
+    sets = new_class_sets(n_classes, n_sites * zf)
+    for a in range(n_sites):
+        x, y, zc = _coordinates(a, nx, ny, nz)
+        for j in range(zf):
+            b = _neighbour(x, y, zc, j, forward, nx, ny, nz, periodic)[0]
+            if b >= 0:
+                c = _bond_class(codes[a], codes[b], z)
+                if c >= 0:
+                    _insert(sets, a * zf + j, c)
+    return sets
+
+
+@jit_serial
+def _kawasaki_rates(limits, rates):
+    for c in range(limits.shape[0]):
+        rates[c] = np.int64(limits[c]) + 1
+
+
+@jit_serial
+def _kawasaki_replica(spins, state, exchange_limits, forward, dims, periodic, sweeps, verify):
+    """Advance one replica; returns (exchanges, class-set mismatches found by ``verify``)."""
+    nx = dims[0]
+    ny = dims[1]
+    nz = dims[2]
+    zf = forward.shape[0]
+    z = 2 * zf
+    n_classes = exchange_limits.shape[1]
+    codes = site_codes(spins, forward, dims, periodic)
+    sets = kawasaki_classes(codes, forward, dims, periodic, n_classes)
+    counts = sets[4]
+    rates = np.zeros(n_classes, dtype=np.int64)
+    buffer = np.empty(LANES, dtype=np.uint64)
+    # the sites whose spin or neighbour sum an exchange changes, with coordinates
+    touched = np.empty((2 * z + 2, 4), dtype=np.int64)
+    # the bonds of those sites: slot, its two sites, class before the exchange
+    bonds = np.empty((z * (2 * z + 2), 4), dtype=np.int64)
+    n_tables = exchange_limits.shape[0]
+    # a slot's rate per sweep is (2 / z) rate / 2**31
+    scale = np.float64(RATE_ONE) * z / 2.0
+    moves = 0
+    mismatches = 0
+    for t in range(sweeps):
+        _kawasaki_rates(exchange_limits[min(t, n_tables - 1)], rates)
+        used = LANES
+        clock = 0.0
+        total = _total_rate(counts, rates)
+        while total > 0:
+            u, used = _next_draw(state, buffer, used)
+            clock += _waiting_time(u, scale, np.float64(total))
+            if clock >= 1.0:
+                break
+            v, used = _next_draw(state, buffer, used)
+            c, rank = _pick(counts, rates, total, v)
+            slot = _select(sets, c, rank)
+            a = slot // zf
+            xa, ya, za = _coordinates(a, nx, ny, nz)
+            b, xb, yb, zb = _neighbour(xa, ya, za, slot - a * zf, forward, nx, ny, nz,
+                                       periodic)
+            # touched sites: a, b and their neighbours, each once (marked in its code)
+            touched[0, 0] = a
+            touched[0, 1] = xa
+            touched[0, 2] = ya
+            touched[0, 3] = za
+            touched[1, 0] = b
+            touched[1, 1] = xb
+            touched[1, 2] = yb
+            touched[1, 3] = zb
+            codes[a] |= _MARK
+            codes[b] |= _MARK
+            n_touched = 2
+            for centre in range(2):
+                for k in range(z):
+                    n, x, y, zc = _neighbour(touched[centre, 1], touched[centre, 2],
+                                             touched[centre, 3], k, forward, nx, ny, nz,
+                                             periodic)
+                    if n >= 0 and not (codes[n] & _MARK):
+                        touched[n_touched, 0] = n
+                        touched[n_touched, 1] = x
+                        touched[n_touched, 2] = y
+                        touched[n_touched, 3] = zc
+                        codes[n] |= _MARK
+                        n_touched += 1
+            # their bonds, each once, with the class before the exchange
+            n_bonds = 0
+            for i in range(n_touched):
+                p = touched[i, 0]
+                for k in range(z):
+                    q = _neighbour(touched[i, 1], touched[i, 2], touched[i, 3], k, forward,
+                                   nx, ny, nz, periodic)[0]
+                    if q < 0 or ((codes[q] & _MARK) and q < p):
+                        continue
+                    bonds[n_bonds, 0] = p * zf + k if k < zf else q * zf + (k - zf)
+                    bonds[n_bonds, 1] = p
+                    bonds[n_bonds, 2] = q
+                    bonds[n_bonds, 3] = _bond_class(codes[p] & ~_MARK, codes[q] & ~_MARK, z)
+                    n_bonds += 1
+            # the exchange: spins of a and b swap, neighbour sums change by -+ 2 s_a
+            delta = 4 * (2 * np.int64(codes[a] & 1) - 1)
+            codes[a] ^= 1
+            codes[b] ^= 1
+            for k in range(z):
+                n = _neighbour(xa, ya, za, k, forward, nx, ny, nz, periodic)[0]
+                if n >= 0:
+                    codes[n] -= delta
+                n = _neighbour(xb, yb, zb, k, forward, nx, ny, nz, periodic)[0]
+                if n >= 0:
+                    codes[n] += delta
+            for i in range(n_bonds):
+                old = bonds[i, 3]
+                new = _bond_class(codes[bonds[i, 1]] & ~_MARK, codes[bonds[i, 2]] & ~_MARK, z)
+                if new != old:
+                    _move(sets, bonds[i, 0], old, new)
+                    total += (rates[new] if new >= 0 else 0) - (rates[old] if old >= 0 else 0)
+            for i in range(n_touched):
+                codes[touched[i, 0]] &= ~_MARK
+            moves += 1
+        if verify:
+            _write_spins(codes, spins)
+            fresh = site_codes(spins, forward, dims, periodic)
+            mismatches += _differences(
+                sets, kawasaki_classes(fresh, forward, dims, periodic, n_classes))
+            if not np.array_equal(codes, fresh):
+                mismatches += 1
+    _write_spins(codes, spins)
+    return moves, mismatches
+
+
+@jit_parallel
+def kawasaki_rejection_free(spins, states, exchange_limits, forward, dims, periodic, sweeps,
+                            moves, verify, mismatches):
+    """Advance every replica by ``sweeps`` sweeps of rejection-free Kawasaki exchanges, in place.
+
+    Parameters are those of :func:`glauber_rejection_free`, except ``exchange_limits``
+    (n_tables, 4 z + 3), the thresholds of the random-sequential Kawasaki kernel indexed by
+    ``q + 2 z``, and ``moves``, incremented by the exchanges made.
+    """
+    for r in prange(spins.shape[0]):
+        m, bad = _kawasaki_replica(spins[r], states[r], exchange_limits, forward, dims,
+                                   periodic, sweeps, verify)
+        moves[r] += m
+        mismatches[r] += bad
