@@ -307,6 +307,191 @@ def _run_fit(args) -> int:
     return 0
 
 
+def _bounds_value(text: str) -> tuple[str, tuple[float, float]]:
+    name, sep, value = text.partition("=")
+    low, comma, high = value.partition(",")
+    if not sep or not comma or not name.strip():
+        raise argparse.ArgumentTypeError(f"{text!r} is not NAME=LOW,HIGH (for example b=0,1)")
+    try:
+        return name.strip(), (float(low), float(high))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r}: {value!r} is not two numbers") from None
+
+
+def _x_value(text: str) -> float:
+    return _number(text, "a number", minimum=-float("inf"))
+
+
+def _add_collapse(subcommands) -> None:
+    collapse = subcommands.add_parser(
+        "collapse",
+        help="scaling collapse of C(r, t), S(k, t) or a family of curves, with posteriors",
+        description=(
+            "Rescale curves onto one master curve and sample the exponents that do it "
+            "together with a Gaussian-process master curve (Harada 2011), with emcee. "
+            "Forms: dynamic (C = f(r/L), S = L^d g(kL), L = (t/t_ref)^n, n free), measured "
+            "(L from a length estimator), power (y = t^a F(x t^-b)) and family "
+            "(y = p^a F((t - t_c)/p^b) across ramp times or another parameter). Default "
+            "windows: r from 1 to 3 L, k <= 2, times with L >= 2 lattice spacings and below "
+            "finite-size saturation."
+        ),
+    )
+    collapse.add_argument("input", metavar="INPUT",
+                          help="a dataset (.nc) from coarsen run/measure or a ramp scan, or a "
+                               "CSV curve table (columns parameter, x, y, y_err)")
+    collapse.add_argument("--observable", choices=("correlation", "structure_factor", "length"),
+                          default=None,
+                          help="what to collapse from a dataset (default: correlation; length "
+                               "for a ramp scan)")
+    collapse.add_argument("-o", "--output", default=None, metavar="OUT.nc",
+                          help="write the collapse (posterior, master curve and band, rescaled "
+                               "data, quality) as NetCDF")
+    collapse.add_argument("--json", action="store_true", help="print one JSON object")
+    collapse.add_argument("--form", choices=("dynamic", "measured", "power", "family"),
+                          default=None, help="scaling form (default: dynamic for C and S, "
+                                             "family for ramp scans, power for tables)")
+    collapse.add_argument("--estimator", default="corr_half",
+                          choices=("corr_zero", "corr_half", "sk_moment", "wall"),
+                          help="length estimator for the windows and the measured form "
+                               "(default: corr_half)")
+    collapse.add_argument("--fix", type=_fixed_value, action="append", default=[],
+                          metavar="NAME=VALUE", help="hold an exponent fixed, e.g. --fix a=0 "
+                                                     "(repeatable)")
+    collapse.add_argument("--bounds", type=_bounds_value, action="append", default=[],
+                          metavar="NAME=LOW,HIGH",
+                          help="uniform prior bounds of an exponent (repeatable)")
+    collapse.add_argument("--shift", action="store_true",
+                          help="power/family: also fit a shift of x (x_c, or t_c)")
+    collapse.add_argument("--tmin", type=_time_value, default=None, metavar="T",
+                          help="first time kept (default: L >= 2 lattice spacings)")
+    collapse.add_argument("--tmax", type=_time_value, default=None, metavar="T",
+                          help="last time kept (default: below finite-size saturation)")
+    collapse.add_argument("--xmin", type=_x_value, default=None, metavar="X",
+                          help="smallest x kept: r/L for C, kL for S, x otherwise")
+    collapse.add_argument("--xmax", type=_x_value, default=None, metavar="X",
+                          help="largest x kept (default for C: r/L <= 3)")
+    collapse.add_argument("--kmax", type=_x_value, default=None, metavar="K",
+                          help="largest |k| of a structure factor (default: 2)")
+    collapse.add_argument("--points", type=_thread_count, default=160, metavar="N",
+                          help="fitted points in all, each curve thinned evenly (default: 160)")
+    collapse.add_argument("--plain-k", action="store_true",
+                          help="collapse S against the shell centre k instead of the lattice "
+                               "wave number 2 sin(k/2)")
+    collapse.add_argument("--no-extra-scatter", action="store_true",
+                          help="no extra scatter term in the master curve (the errors must "
+                               "account for all the scatter)")
+    collapse.add_argument("--quick", action="store_true",
+                          help="only minimise the Houdayer-Hartmann quality (seconds; rough "
+                               "profile intervals, no posterior)")
+    collapse.add_argument("--max-steps", type=_thread_count, default=20000, metavar="N",
+                          help="step cap of the chain (default: 20000)")
+    collapse.add_argument("--seed", type=int, default=None, help="sampler seed (default: fixed)")
+    collapse.add_argument("--quiet", action="store_true", help="no printed summary")
+    collapse.set_defaults(handler=_run_collapse)
+
+
+def _run_collapse(args) -> int:
+    import json
+    import warnings
+
+    from coarsen.dataset import write_dataset
+    from coarsen.fit.collapse import fit_collapse
+    from coarsen.fit.sampling import DEFAULT_SEED
+
+    if args.output is not None:
+        output = os.path.abspath(args.output)
+        same = os.path.exists(output) and os.path.exists(args.input) and \
+            os.path.samefile(output, args.input)
+        if same or output == os.path.abspath(args.input):
+            raise ValueError(f"output {args.output!r}: is the input; a collapse is written to "
+                             f"its own file")
+        if not os.path.isdir(os.path.dirname(output)):
+            raise ValueError(f"output {args.output!r}: the directory does not exist")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        result = fit_collapse(args.input, observable=args.observable, form=args.form,
+                              estimator=args.estimator, fixed=dict(args.fix),
+                              bounds=dict(args.bounds), shift=args.shift, tmin=args.tmin,
+                              tmax=args.tmax, xmin=args.xmin, xmax=args.xmax, kmax=args.kmax,
+                              points=args.points,
+                              wave_number="plain" if args.plain_k else "lattice",
+                              extra_scatter=not args.no_extra_scatter, quick=args.quick,
+                              seed=DEFAULT_SEED if args.seed is None else args.seed,
+                              max_steps=args.max_steps)
+    for warning in caught:
+        print(f"{_PROG} collapse: warning: {_one_line(warning.message)}", file=sys.stderr)
+    if args.output is not None:
+        write_dataset(result.to_dataset(), args.output)
+    if args.json:
+        print(json.dumps(result.to_json()))
+    elif not args.quiet:
+        print(result.format_table())
+        if args.output is not None:
+            print(f"wrote {args.output}")
+    return 0
+
+
+def _add_sweep(subcommands) -> None:
+    sweep = subcommands.add_parser(
+        "sweep",
+        help="run a parameter grid of specs as Dask tasks and combine the results",
+        description=(
+            "Run every (grid point, replica batch) of a sweep file as one Dask task, on a "
+            "LocalCluster with one single-threaded worker per core or on a running scheduler "
+            "(--scheduler). Each task writes DIR/parts/point-PPPP-batch-BBB.nc atomically and "
+            "is recorded in DIR/manifest.json; --resume skips the finished parts. At the end "
+            "the parts are combined into DIR/combined.nc (coarsen.open_sweep(DIR) in Python)."
+        ),
+    )
+    sweep.add_argument("sweep", metavar="SWEEP.toml", help="the sweep file")
+    sweep.add_argument("-o", "--output", required=True, metavar="DIR",
+                       help="the sweep directory (created; its parent must exist)")
+    sweep.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                       help="a running Dask scheduler: tcp://host:port or a scheduler file "
+                            "(default: start a LocalCluster here)")
+    sweep.add_argument("--workers", type=_thread_count, default=None, metavar="N",
+                       help="LocalCluster worker processes, one thread each (default: one "
+                            "per core)")
+    sweep.add_argument("--resume", action="store_true",
+                       help="continue the sweep in DIR, skipping its finished parts")
+    sweep.add_argument("--retries", type=int, default=2, metavar="N",
+                       help="extra attempts for a failing task before it is reported "
+                            "(default: 2)")
+    sweep.add_argument("--no-combine", action="store_true",
+                       help="do not write DIR/combined.nc")
+    sweep.add_argument("--quiet", action="store_true",
+                       help="no dashboard address, progress bar or summary")
+    sweep.set_defaults(handler=_run_sweep)
+
+
+def _run_sweep(args) -> int:
+    from coarsen._progress import wants_progress
+    from coarsen.sweep import SweepFailed, run_sweep
+    from coarsen.sweep_file import load_sweep
+
+    sweep = load_sweep(args.sweep)
+
+    def notify(message):
+        if not args.quiet:
+            print(f"{_PROG} sweep: {message}", file=sys.stderr, flush=True)
+
+    try:
+        report = run_sweep(sweep, args.output, scheduler=args.scheduler, workers=args.workers,
+                           resume=args.resume, retries=args.retries,
+                           combine=not args.no_combine, progress=wants_progress(args.quiet),
+                           notify=notify)
+    except SweepFailed as failed:
+        print(f"{_PROG} sweep: {_one_line(failed)}. Resume with: {_PROG} sweep {args.sweep} "
+              f"-o {args.output} --resume", file=sys.stderr)
+        return 1
+    if not args.quiet:
+        combined = f", combined into {report.combined}" if report.combined else ""
+        print(f"wrote {args.output}: {report.points} points, {report.tasks} tasks "
+              f"({report.ran} run now in {report.seconds:.1f} s, {report.reused} already "
+              f"finished){combined}")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     """Build the argument parser of the ``coarsen`` command.
 
@@ -328,6 +513,8 @@ def build_parser() -> argparse.ArgumentParser:
     _add_run(subcommands)
     _add_measure(subcommands)
     _add_fit(subcommands)
+    _add_collapse(subcommands)
+    _add_sweep(subcommands)
     _add_bench(subcommands)
     return parser
 
