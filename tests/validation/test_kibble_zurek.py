@@ -1,0 +1,92 @@
+"""Kibble-Zurek scaling of linear ramps through Tc (Glauber, square lattice).
+
+Freeze-out (Kibble, J. Phys. A 9, 1387 (1976); Zurek, Nature 317, 505 (1985)): at the moment a
+ramp of duration tau crosses Tc, N <m^2> ~ tau^(gamma / (1 + z nu)) with the 2D Ising gamma = 7/4,
+nu = 1 (exact) and z = 2.1665(12) (Nightingale & Blote, Phys. Rev. Lett. 76, 4548 (1996)),
+so ~ tau^0.553 (values recalled from memory). After the crossing the domains keep coarsening,
+so the length at the end of a ramp deep into the ordered phase grows faster with tau than the
+freeze-out length exponent nu / (1 + z nu) = 0.316: the baseline for post-ramp growth.
+
+Checkerboard (sublattice) heat-bath updates are used for speed; they are single-spin-flip
+dynamics of the same non-conserved class (model A), with the same z (common practice, no
+source). The lattice is far larger than the freeze-out length at the crossing (L_half there is
+1.3-2.5 sites on 64^2).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from coarsen.fit.kibble_zurek import fit_kibble_zurek, freeze_out_values, kibble_zurek_exponents
+from coarsen.simulate import simulate
+from coarsen.spec import parse_spec
+
+
+def _scan(size: int, replicas: int, durations, seed: int, extra_times=()):
+    times = sorted(set([d // 2 for d in durations] + list(durations) + list(extra_times)))
+    text = f"""
+[lattice]
+kind = "square"
+size = [{size}, {size}]
+[dynamics]
+rule = "glauber"
+update = "checkerboard"
+[temperature]
+ramp = {{ start = 1.5, stop = 0.5, duration = {list(durations)}, relative = true }}
+[measure]
+times = {times}
+[ensemble]
+replicas = {replicas}
+seed = {seed}
+"""
+    return simulate(parse_spec(text)).dataset
+
+
+def test_freeze_out_values_read_exact_and_interpolated_moments():
+    ds = _scan(16, 4, [8, 32, 64], seed=5, extra_times=[1, 3])
+    crossing = freeze_out_values(ds, quantity="susceptibility", moment="crossing")
+    assert np.allclose(crossing.moment_time, [4.0, 16.0, 32.0])
+    assert not crossing.interpolated.any()
+    m = ds["magnetization"].values
+    times = ds["time"].values
+    for i, t in enumerate(crossing.moment_time):
+        per_replica = 256 * m[i, :, times == t][0] ** 2
+        assert np.isclose(crossing.value[i], per_replica.mean())
+    end = freeze_out_values(ds.sel(time=ds.time != 32.0), quantity="length", moment="end",
+                            estimator="corr_half")
+    assert end.interpolated.tolist() == [False, True, False]
+    with pytest.raises(ValueError, match="ramp_time"):
+        freeze_out_values(ds.isel(ramp_time=0))
+    with pytest.raises(ValueError, match="at least three"):
+        fit_kibble_zurek(ds.isel(ramp_time=[0, 1]))
+    with pytest.raises(ValueError, match="estimator"):
+        freeze_out_values(ds, quantity="length", estimator="bogus")
+
+
+@pytest.mark.slow
+def test_susceptibility_at_the_crossing_follows_the_freeze_out_exponent():
+    """N <m^2> at the crossing ~ tau^0.553 within 0.10 (the issue's tolerance; the fit's 95%
+    interval is about +-0.04 with 512 replicas per duration)."""
+    ds = _scan(64, 512, [64, 128, 256, 512, 1024, 2048], seed=2026)
+    fit = fit_kibble_zurek(ds, quantity="susceptibility", moment="crossing")
+    print(fit.summary())
+    prediction = kibble_zurek_exponents()["susceptibility"]
+    assert abs(fit.exponent["median"] - prediction) < 0.10, fit.summary()
+    low, high = fit.exponent["hdi95"]
+    assert high - low < 0.2
+
+
+@pytest.mark.slow
+def test_length_after_the_ramp_grows_faster_than_freeze_out():
+    """L at the end of ramps to 0.5 Tc grows with tau faster than nu/(1 + z nu) = 0.316:
+    coarsening continues after the crossing (reported, not an equality)."""
+    ds = _scan(128, 32, [64, 128, 256, 512, 1024], seed=2027)
+    fit = fit_kibble_zurek(ds, quantity="length", moment="end", estimator="corr_half")
+    print(fit.summary())
+    frozen = kibble_zurek_exponents()["length"]
+    assert fit.exponent["hdi95"][0] > frozen, fit.summary()
+    at_crossing = fit_kibble_zurek(ds, quantity="length", moment="crossing",
+                                   estimator="corr_half")
+    print(at_crossing.summary())
+    assert fit.exponent["median"] > at_crossing.exponent["median"]
