@@ -267,6 +267,20 @@ def _add_fit(subcommands) -> None:
     fit.set_defaults(handler=_run_fit)
 
 
+def _check_separate_output(args, what: str) -> None:
+    """A fit or collapse writes its own file: never the input, only into an existing directory."""
+    if args.output is None:
+        return
+    output = os.path.abspath(args.output)
+    same = os.path.exists(output) and os.path.exists(args.input) and \
+        os.path.samefile(output, args.input)
+    if same or output == os.path.abspath(args.input):
+        raise ValueError(f"output {args.output!r}: is the input; a {what} is written to its "
+                         f"own file")
+    if not os.path.isdir(os.path.dirname(output)):
+        raise ValueError(f"output {args.output!r}: the directory does not exist")
+
+
 def _run_fit(args) -> int:
     import json
     import warnings
@@ -275,15 +289,7 @@ def _run_fit(args) -> int:
     from coarsen.fit import fit_growth
     from coarsen.fit.sampling import DEFAULT_SEED
 
-    if args.output is not None:
-        output = os.path.abspath(args.output)
-        same = os.path.exists(output) and os.path.exists(args.input) and \
-            os.path.samefile(output, args.input)
-        if same or output == os.path.abspath(args.input):
-            raise ValueError(f"output {args.output!r}: is the input; a fit is written to its "
-                             f"own file")
-        if not os.path.isdir(os.path.dirname(output)):
-            raise ValueError(f"output {args.output!r}: the directory does not exist")
+    _check_separate_output(args, "fit")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         result = fit_growth(args.input, estimator=args.estimator, model=args.model,
@@ -398,15 +404,7 @@ def _run_collapse(args) -> int:
     from coarsen.fit.collapse import fit_collapse
     from coarsen.fit.sampling import DEFAULT_SEED
 
-    if args.output is not None:
-        output = os.path.abspath(args.output)
-        same = os.path.exists(output) and os.path.exists(args.input) and \
-            os.path.samefile(output, args.input)
-        if same or output == os.path.abspath(args.input):
-            raise ValueError(f"output {args.output!r}: is the input; a collapse is written to "
-                             f"its own file")
-        if not os.path.isdir(os.path.dirname(output)):
-            raise ValueError(f"output {args.output!r}: the directory does not exist")
+    _check_separate_output(args, "collapse")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         result = fit_collapse(args.input, observable=args.observable, form=args.form,
