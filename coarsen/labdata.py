@@ -20,6 +20,7 @@ object array is refused, never unpickled.
 
 from __future__ import annotations
 
+import zipfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -70,6 +71,8 @@ def _read_arrays(path: Path) -> tuple[np.ndarray, np.ndarray | None, np.ndarray 
         if suffix == ".npy":
             return np.load(path, allow_pickle=False), None, None
         if suffix == ".npz":
+            if not zipfile.is_zipfile(path):  # np.load would leave the file open
+                _fail(path, "not a readable NumPy file (an .npz is a zip archive; this is not)")
             with np.load(path, allow_pickle=False) as archive:
                 names = set(archive.files)
                 key = next((k for k in _SPIN_KEYS if k in names), None)
@@ -90,8 +93,8 @@ def _read_arrays(path: Path) -> tuple[np.ndarray, np.ndarray | None, np.ndarray 
         if str(error).startswith(repr(str(path))):
             raise
         _fail(path, f"not a readable NumPy file ({error})")
-    except OSError as error:
-        _fail(path, f"not readable ({error})")
+    except (OSError, EOFError, zipfile.BadZipFile) as error:  # empty, truncated, torn archive
+        _fail(path, f"not a readable NumPy file ({type(error).__name__}: {error})")
     _fail(path, f"unsupported file type {suffix!r}; give .npy, .npz or .nc")
 
 
@@ -112,8 +115,8 @@ def _from_dataset(path: Path) -> tuple[np.ndarray, np.ndarray, str]:
 def _spin_values(values: np.ndarray, mask, path: Path) -> np.ndarray:
     if values.dtype == bool:
         values = values.astype(np.int8)
-    if not np.issubdtype(values.dtype, np.number):
-        _fail(path, f"spins have dtype {values.dtype}; expected numbers 0/1 or -1/+1")
+    if not (np.issubdtype(values.dtype, np.integer) or np.issubdtype(values.dtype, np.floating)):
+        _fail(path, f"spins have dtype {values.dtype}; expected real numbers 0/1 or -1/+1")
     present = np.broadcast_to(mask, values.shape) if mask is not None else None
     seen = values[present] if present is not None else values
     with np.errstate(invalid="ignore"):

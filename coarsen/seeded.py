@@ -30,6 +30,7 @@ Shapes
 from __future__ import annotations
 
 import math
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -191,8 +192,8 @@ def read_configuration(path, lattice: Lattice, replicas: int, name: str = "initi
         if isinstance(error, ParameterError):
             raise
         fail(f"not a plain numeric array file ({error})")
-    except OSError as error:
-        fail(f"not readable ({error})")
+    except (OSError, EOFError, zipfile.BadZipFile) as error:  # empty, truncated, torn archive
+        fail(f"not readable ({type(error).__name__}: {error})")
     size = tuple(lattice.size)
     if values.shape == size:
         values = np.broadcast_to(values, (replicas, *size))

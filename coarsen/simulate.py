@@ -339,6 +339,28 @@ def _dataset(spec, grid: MeasurementGrid, state: RunState) -> xr.Dataset:
                          extra_coords=cut_coordinates(cuts) if cuts else None)
 
 
+def _same_file(a: Path, b: Path) -> bool:
+    if a.exists() and b.exists():
+        return a.samefile(b)
+    return a.resolve() == b.resolve()
+
+
+def _check_not_an_input(spec, output: Path) -> None:
+    """The output, and the checkpoint beside it, must not be a file the run reads."""
+    inputs = []
+    if spec.source is not None:
+        inputs.append(("spec file", Path(spec.source)))
+    if spec.initial.state == "file":
+        inputs.append(("start file (initial.path)", Path(spec.initial.parameter_dict()["path"])))
+    checkpoint = output.with_name(output.name + ".checkpoint")
+    for what, path in inputs:
+        for written in (output, checkpoint):
+            if _same_file(written, path):
+                which = "its checkpoint " if written is checkpoint else ""
+                raise ValueError(f"output {str(output)!r}: {which}is the input {what} "
+                                 f"{str(path)!r}; write the dataset to a file of its own")
+
+
 def run_spec(spec, output, *, threads: int | None = None, resume: bool = False,
              checkpoint_every: float = 60.0, progress: bool = False,
              notify: Callable[[str], None] | None = None, after_call=None) -> RunResult:
@@ -356,6 +378,7 @@ def run_spec(spec, output, *, threads: int | None = None, resume: bool = False,
     if not output.parent.is_dir():
         raise ValueError(f"output {str(output)!r}: the directory {str(output.parent)!r} "
                          "does not exist")
+    _check_not_an_input(spec, output)
     if spec.is_ramp_scan:
         from coarsen.ramp_scan import run_ramp_scan
 

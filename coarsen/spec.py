@@ -73,6 +73,7 @@ from coarsen.engine import ACCEPTANCES, RULES, UPDATES, check_dynamics
 from coarsen.initial import ORDERS, InitialState, check_state
 from coarsen.lattice import BOUNDARIES, LATTICE_KINDS, Lattice
 from coarsen.observables.interfaces import DEFAULT_CUT_WIDTH, Cut, check_cut_width, parse_cuts
+from coarsen.resources import check_run_memory
 from coarsen.schedule import Schedule, constant, from_points, ramp
 from coarsen.seeded import SEEDED_PARAMETERS, read_configuration, seed_centre, seed_sites
 
@@ -656,7 +657,6 @@ def _build(mapping: dict, source, text: str) -> Spec:
     rule, acceptance, update = _dynamics(tables["dynamics"], lattice)
     schedules = _temperature(tables["temperature"], lattice, J)
     temperature = schedules[0]
-    initial = _initial(tables["initial"], lattice, source)
     measure = tables["measure"]
     times = _times(_required(measure, "measure", "times",
                              "times = { start = 1, stop = 1000, count = 25 }"))
@@ -685,6 +685,9 @@ def _build(mapping: dict, source, text: str) -> Spec:
                              minimum=1, what="number of replicas")
     seed = check_integer(_required(ensemble, "ensemble", "seed", "seed = 20261201"),
                          "ensemble.seed", minimum=0, what="seed (whole number)")
+    # before the initial state, whose seeded shapes are the first arrays of lattice size
+    check_run_memory(lattice, replicas, snapshots)
+    initial = _initial(tables["initial"], lattice, source)
     if initial.state == "file":
         read_configuration(initial.parameter_dict()["path"], lattice, replicas)
     return Spec(lattice=lattice, J=J, field=field, rule=rule, acceptance=acceptance,
