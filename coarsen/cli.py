@@ -490,6 +490,80 @@ def _run_sweep(args) -> int:
     return 0
 
 
+def _add_plot(subcommands) -> None:
+    from coarsen.plot import KINDS
+
+    plot = subcommands.add_parser(
+        "plot",
+        help="draw a run, fit or collapse dataset as a figure (.png, .pdf, .svg)",
+        description=(
+            "Draw one kind of figure from a dataset: growth (L(t) per estimator, with a fit's "
+            "median and 95%% band from --fit), exponent (n_eff(t)), collapse, structure "
+            "(S(k, t)), snapshots, posterior (corner plot of a fit or collapse), protocol "
+            "(T(t) above L(t)) or seeded (seeded-domain area and interfaces)."
+        ),
+    )
+    plot.add_argument("input", metavar="INPUT",
+                      help="a run, lab, ramp-scan, fit or collapse dataset (.nc)")
+    plot.add_argument("-o", "--output", required=True, metavar="FIG",
+                      help="the figure: .png, .pdf or .svg")
+    plot.add_argument("--kind", choices=KINDS, default=None,
+                      help="what to draw (default: collapse for a collapse, growth otherwise)")
+    plot.add_argument("--fit", default=None, metavar="FIT.nc",
+                      help="growth: a fit from coarsen fit -o to draw over the lengths")
+    plot.add_argument("--estimator", default=None,
+                      choices=("corr_zero", "corr_half", "sk_moment", "wall"),
+                      help="growth: only this estimator; exponent/protocol: the estimator "
+                           "(default corr_half)")
+    plot.add_argument("--title", default=None, help="a title for the figure")
+    plot.add_argument("--quiet", action="store_true", help="no printed summary")
+    plot.set_defaults(handler=_run_plot)
+
+
+def _run_plot(args) -> int:
+    from coarsen.plot import plot_file
+
+    path = plot_file(args.input, args.output, kind=args.kind, fit=args.fit,
+                     estimator=args.estimator, title=args.title)
+    if not args.quiet:
+        print(f"wrote {path}")
+    return 0
+
+
+def _add_demo(subcommands) -> None:
+    demo = subcommands.add_parser(
+        "demo",
+        help="run the whole job on embedded defaults: runs, fits, collapses, figures, summary",
+        description=(
+            "Run a non-conserved and a conserved quench, a ramp through Tc with a hold and a "
+            "shrinking seeded disk, fit their growth laws and scaling collapses, draw every "
+            "kind of figure and write summary.txt into DIR (a few minutes on two cores; "
+            "--quick: small lattices and short chains, for tests)."
+        ),
+    )
+    demo.add_argument("-o", "--output", default="coarsen-demo", metavar="DIR",
+                      help="where to write (created; default: coarsen-demo)")
+    demo.add_argument("--quick", action="store_true",
+                      help="small lattices and short chains (seconds; numbers not meaningful)")
+    demo.add_argument("--threads", type=_thread_count, default=None, metavar="N",
+                      help="engine threads (default: all cores)")
+    demo.add_argument("--quiet", action="store_true", help="no progress lines or summary")
+    demo.set_defaults(handler=_run_demo)
+
+
+def _run_demo(args) -> int:
+    from coarsen.demo import run_demo
+
+    def notify(message):
+        if not args.quiet:
+            print(f"{_PROG} demo: {message}", file=sys.stderr, flush=True)
+
+    result = run_demo(args.output, quick=args.quick, threads=args.threads, notify=notify)
+    if not args.quiet:
+        print(result.summary, end="")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     """Build the argument parser of the ``coarsen`` command.
 
@@ -513,6 +587,8 @@ def build_parser() -> argparse.ArgumentParser:
     _add_fit(subcommands)
     _add_collapse(subcommands)
     _add_sweep(subcommands)
+    _add_plot(subcommands)
+    _add_demo(subcommands)
     _add_bench(subcommands)
     return parser
 
