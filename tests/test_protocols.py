@@ -13,7 +13,8 @@ from coarsen.engine import advance, make_streams
 from coarsen.lattice import Lattice
 from coarsen.simulate import RunInterrupted, run_spec, simulate
 from coarsen.spec import parse_spec
-from tests.test_simulate import _assert_same_data, _spec_text
+from tests.specs import spec_text as _spec_text
+from tests.test_simulate import _assert_same_data
 
 
 # ------------------------------------------------------------------------------------------

@@ -12,40 +12,11 @@ from coarsen.cli import main
 from coarsen.dataset import open_dataset
 from coarsen.simulate import RunInterrupted, run_spec, simulate
 from coarsen.spec import parse_spec
+from tests.specs import spec_text as _spec_text
 from tests.validation import _exact
 from tests.validation._equilibrium import check_mean
 
 SQUARE_TC = 2.0 / np.log(1.0 + np.sqrt(2.0))
-
-
-def _spec_text(*, kind="square", size=(16, 16), rule="glauber", update="random",
-               temperature="value = 1.2", initial='state = "random"', times=None,
-               snapshots=2, replicas=4, seed=11, extra=""):
-    times = times or 'times = { start = 1, stop = 60, count = 8, spacing = "log" }'
-    return f"""
-[lattice]
-kind = "{kind}"
-size = {list(size)}
-
-[dynamics]
-rule = "{rule}"
-update = "{update}"
-
-[temperature]
-{temperature}
-
-[initial]
-{initial}
-
-[measure]
-{times}
-snapshots = {snapshots}
-{extra}
-
-[ensemble]
-replicas = {replicas}
-seed = {seed}
-"""
 
 
 def _assert_same_data(a: xr.Dataset, b: xr.Dataset) -> None:

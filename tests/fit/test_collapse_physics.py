@@ -29,8 +29,7 @@ import numpy as np
 import pytest
 
 from coarsen.fit import fit_collapse, tail_exponent
-from coarsen.simulate import simulate
-from coarsen.spec import parse_spec
+from tests.specs import quench
 
 #: Largest allowed |C - C_OJK| for r <= 3 r_half: "a few hundredths" (Bray 1994: OJK is good
 #: but not exact in 2D). Measured while writing this test: 0.015 at T = 0 (256^2, 8
@@ -40,32 +39,6 @@ OJK_MAX_DEVIATION = 0.05
 OJK_HALF = math.sqrt(math.log(2) / 2)
 
 
-def _quench(*, rule, temperature, size, replicas, times, seed):
-    text = f"""
-[lattice]
-kind = "square"
-size = [{size}, {size}]
-
-[dynamics]
-rule = "{rule}"
-update = "random"
-
-[temperature]
-{temperature}
-
-[initial]
-state = "random"
-magnetization = 0.0
-
-[measure]
-{times}
-snapshots = 0
-
-[ensemble]
-replicas = {replicas}
-seed = {seed}
-"""
-    return simulate(parse_spec(text)).dataset
 
 
 _GLAUBER_TIMES = 'times = { start = 50, stop = 500, count = 10, spacing = "log" }'
@@ -74,7 +47,7 @@ _GLAUBER_TIMES = 'times = { start = 50, stop = 500, count = 10, spacing = "log" 
 @pytest.fixture(scope="module")
 def glauber():
     """Glauber quenches to T = 0 and 0.5 Tc, 256^2, 16 replicas (seeds fixed here)."""
-    return {name: _quench(rule="glauber", temperature=temperature, size=256, replicas=16,
+    return {name: quench(rule="glauber", temperature=temperature, size=256, replicas=16,
                           times=_GLAUBER_TIMES, seed=seed)
             for name, temperature, seed in (("zero", "value = 0.0", 61),
                                             ("half", "relative = 0.5", 62))}
@@ -130,7 +103,7 @@ def test_kawasaki_structure_factor_peak():
     """k_m r_0 constant within 15 % over t >= 1000 (r_0 = corr_zero): the late-time ratios
     of shared/REFERENCE.md Sect. 6 hold within 5 % at 256^2 and t >= 1e4; here the shells
     are dk = 2 pi / 128 = 0.05 wide, about a tenth of k_m (derived), hence the wider band."""
-    ds = _quench(rule="kawasaki", temperature="relative = 0.5", size=128, replicas=6,
+    ds = quench(rule="kawasaki", temperature="relative = 0.5", size=128, replicas=6,
                  times='times = { start = 100, stop = 8000, count = 8, spacing = "log" }',
                  seed=63)
     s = ds["structure_factor"].values
@@ -161,7 +134,7 @@ def test_kawasaki_large_lattice_collapse_and_small_k_slope():
     """256^2, 8 replicas, up to 3e4 sweeps (a few minutes). Reports the small-k slope of S
     below the peak (Yeung's k^4 needs far larger lattices; not asserted) and the tail slope of
     the structure-factor collapse against 2 sin(k/2) (reported, see below)."""
-    ds = _quench(rule="kawasaki", temperature="relative = 0.5", size=256, replicas=8,
+    ds = quench(rule="kawasaki", temperature="relative = 0.5", size=256, replicas=8,
                  times='times = { start = 3000, stop = 30000, count = 6, spacing = "log" }',
                  seed=64)
     fit = fit_collapse(ds, observable="structure_factor", estimator="corr_zero", points=120)

@@ -17,36 +17,9 @@ import pytest
 from coarsen.fit import fit_growth
 from coarsen.fit.effective import effective_exponent
 from coarsen.fit.inputs import growth_data_from_dataset
-from coarsen.simulate import simulate
-from coarsen.spec import parse_spec
+from tests.specs import quench
 
 
-def _quench(*, rule, temperature, size, replicas, times, seed):
-    text = f"""
-[lattice]
-kind = "square"
-size = [{size}, {size}]
-
-[dynamics]
-rule = "{rule}"
-update = "random"
-
-[temperature]
-{temperature}
-
-[initial]
-state = "random"
-magnetization = 0.0
-
-[measure]
-{times}
-snapshots = 0
-
-[ensemble]
-replicas = {replicas}
-seed = {seed}
-"""
-    return simulate(parse_spec(text)).dataset
 
 
 @pytest.mark.parametrize("temperature, seed", [("value = 0.0", 41), ("relative = 0.5", 42)])
@@ -57,7 +30,7 @@ def test_glauber_quench_follows_allen_cahn(temperature, seed):
     transient from the uncorrelated start; see n_eff in the fit), which is why the window
     starts at 50; at 500 sweeps corr_half is ~15 = 0.06 of the side, below the saturation
     cut. About 3 s per temperature."""
-    ds = _quench(rule="glauber", temperature=temperature, size=256, replicas=16, seed=seed,
+    ds = quench(rule="glauber", temperature=temperature, size=256, replicas=16, seed=seed,
                  times='times = { start = 50, stop = 500, count = 12, spacing = "log" }')
     fit = fit_growth(ds, tmin=50, tmax=500, compare=False)
     n = fit.exponent
@@ -77,9 +50,9 @@ def test_kawasaki_quench_approaches_lifshitz_slyozov():
     * The offset model L = L0 + A t^n fitted to t >= 100 gives n within 0.05 of 1/3.
     """
     times = 'times = { start = 10, stop = 30000, count = 24, spacing = "log" }'
-    conserved = _quench(rule="kawasaki", temperature="relative = 0.5", size=256, replicas=8,
+    conserved = quench(rule="kawasaki", temperature="relative = 0.5", size=256, replicas=8,
                         times=times, seed=43)
-    glauber = _quench(rule="glauber", temperature="relative = 0.5", size=256, replicas=8,
+    glauber = quench(rule="glauber", temperature="relative = 0.5", size=256, replicas=8,
                       times='times = { start = 10, stop = 1000, count = 12, spacing = "log" }',
                       seed=44)
     data = growth_data_from_dataset(conserved, "corr_zero")
