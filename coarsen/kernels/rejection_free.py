@@ -30,16 +30,26 @@ Rates are kept as integers in units of 2**-31 per sweep (Glauber) or (2/z) 2**-3
 
 Uniform choice within a class, in site order
 --------------------------------------------
-Each class is a bit set over the moves with counts per 2**10, 2**14 and 2**18 moves; the k-th
-member in increasing move index is found by scanning those counts and then 16 words. So the
-choice depends only on the configuration and the random numbers, never on the order in
-which moves entered a class: the class sets are rebuilt from the spins at the start of every
-call, and a run split into calls of any length gives the same bits. Memory layout for speed:
-the 16 words of one class and level-1 group are contiguous (a short scan), the words of all
-classes of one group are adjacent (a move changing class touches few cache lines), the
-counts are stored class by class.
+Every move's class is kept in a *class array*, one int8 per move (-1: none): for Glauber the
+site codes themselves, for Kawasaki one entry per bond slot. Beside it, the members of each
+class are counted per 64-move word (uint8) and per 2**10, 2**14 and 2**18 moves. The k-th
+member in increasing move index is found by scanning those counts down to one word, and then
+within the word by comparing its 64 class bytes with the class (eight 64-bit words, a
+byte-equality bit trick) and taking the k-th set bit. So the choice depends only on the
+configuration and the random numbers, never on the order in which moves entered a class:
+the class array and counts are rebuilt from the spins at the start of every call, and a run
+split into calls of any length gives the same bits. Memory layout for speed: the 16 word
+counts of one class and level-1 group are contiguous (a short scan), those of all classes of
+one group are adjacent (a move changing class touches few cache lines), the higher counts
+are stored class by class; the word found is the cache line of codes that the event then
+updates, so the last step of the search costs no extra memory traffic (Glauber).
 Within a call a site carries one int8 *code* ``2 (f + z) + (s + 1) / 2``, its spin and
 neighbour sum together (for Glauber, its class); the spins are written back at the end.
+A Kawasaki exchange rewrites the codes of a, b and their neighbours, then brings the class
+of every bond of those sites up to date against the class array (a bond reached from both
+ends is found current the second time). The codes, class array and counts are built row by
+row at the start of a call (about 4 ms for Glauber and 7 ms for Kawasaki on 1024**2 sites,
+measured on the 2-core development machine).
 
 Time and random words
 ---------------------
@@ -75,19 +85,6 @@ _WORD_BITS = 6
 _LEVEL1_BITS = 10
 _LEVEL2_BITS = 14
 _LEVEL3_BITS = 18
-#: Bit of a site code that marks the sites touched by a Kawasaki exchange.
-_MARK = 64
-
-
-@numba.extending.intrinsic
-def _popcount(typingctx, word):
-    """Number of set bits of a uint64 (LLVM ``ctpop``)."""
-    sig = numba.core.types.uint64(numba.core.types.uint64)
-
-    def codegen(context, builder, signature, args):
-        return builder.ctpop(args[0])
-
-    return sig, codegen
 
 
 @numba.extending.intrinsic
@@ -104,31 +101,58 @@ def _trailing_zeros(typingctx, word):
 
 
 # --------------------------------------------------------------------------------------------
-# class sets: a bit set per class with three levels of counts
+# class sets: counts of the members of each class at four levels, over a class array
 # --------------------------------------------------------------------------------------------
 @jit_serial
 def new_class_sets(n_classes, n_moves):
-    """Empty class sets for ``n_moves`` moves:
-    (bits, counts1, counts2, counts3, counts).
+    """Empty class sets for ``n_moves`` moves: (counts0, counts1, counts2, counts3, counts).
 
-    ``bits[g, c, i]`` holds moves 64 w .. 64 w + 63 of class c, w = 16 g + i (the 16 words
-    of one class and level-1 group are contiguous); ``countsL[c, g]`` counts the
-    members of class c among moves ``g 2**b_L`` .. ``(g + 1) 2**b_L - 1`` (b_L = 10, 14, 18
-    for L = 1, 2, 3); ``counts[c]`` all members of class c.
+    ``counts0[g, c, i]`` (uint8) counts the members of class c among moves 64 w .. 64 w + 63,
+    w = 16 g + i (the 16 word counts of one class and level-1 group are contiguous, those of
+    all classes of one group adjacent); ``countsL[c, g]`` the members of class c among moves
+    ``g 2**b_L`` .. ``(g + 1) 2**b_L - 1`` (b_L = 10, 14, 18 for L = 1, 2, 3);
+    ``counts[c]`` all members of class c. Which moves they are is read from the class array
+    (one int8 per move, see :func:`padded_classes`).
     """
-    bits = np.zeros(((n_moves >> _LEVEL1_BITS) + 1, n_classes, 16), dtype=np.uint64)
+    counts0 = np.zeros(((n_moves >> _LEVEL1_BITS) + 1, n_classes, 16), dtype=np.uint8)
     counts1 = np.zeros((n_classes, (n_moves >> _LEVEL1_BITS) + 1), dtype=np.int32)
     counts2 = np.zeros((n_classes, (n_moves >> _LEVEL2_BITS) + 1), dtype=np.int32)
     counts3 = np.zeros((n_classes, (n_moves >> _LEVEL3_BITS) + 1), dtype=np.int32)
     counts = np.zeros(n_classes, dtype=np.int64)
-    return bits, counts1, counts2, counts3, counts
+    return counts0, counts1, counts2, counts3, counts
+
+
+@jit_serial
+def padded_classes(n_moves):
+    """Class array for ``n_moves`` moves, all -1 (no class), padded to whole 64-move words."""
+    return np.full((((n_moves + 63) >> _WORD_BITS) << _WORD_BITS) + 64, -1, dtype=np.int8)
+
+
+@jit_serial
+def _count_members(classes, n_moves, n_classes):
+    """Class sets counting the members of every class in ``classes[:n_moves]``."""
+    sets = new_class_sets(n_classes, n_moves)
+    counts0, counts1, counts2, counts3, counts = sets
+    for move in range(n_moves):
+        c = classes[move]
+        if c >= 0:
+            counts0[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] += 1
+    for g in range(counts0.shape[0]):
+        for c in range(n_classes):
+            n = 0
+            for i in range(16):
+                n += np.int64(counts0[g, c, i])
+            counts1[c, g] = n
+            counts2[c, g >> (_LEVEL2_BITS - _LEVEL1_BITS)] += n
+            counts3[c, g >> (_LEVEL3_BITS - _LEVEL1_BITS)] += n
+            counts[c] += n
+    return sets
 
 
 @jit_inline
 def _insert(sets, move, c):
-    bits, counts1, counts2, counts3, counts = sets
-    bits[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] |= (np.uint64(1)
-                                                                 << np.uint64(move & 63))
+    counts0, counts1, counts2, counts3, counts = sets
+    counts0[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] += 1
     counts1[c, move >> _LEVEL1_BITS] += 1
     counts2[c, move >> _LEVEL2_BITS] += 1
     counts3[c, move >> _LEVEL3_BITS] += 1
@@ -137,9 +161,8 @@ def _insert(sets, move, c):
 
 @jit_inline
 def _delete(sets, move, c):
-    bits, counts1, counts2, counts3, counts = sets
-    bits[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] &= ~(np.uint64(1)
-                                                                  << np.uint64(move & 63))
+    counts0, counts1, counts2, counts3, counts = sets
+    counts0[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] -= 1
     counts1[c, move >> _LEVEL1_BITS] -= 1
     counts2[c, move >> _LEVEL2_BITS] -= 1
     counts3[c, move >> _LEVEL3_BITS] -= 1
@@ -148,7 +171,8 @@ def _delete(sets, move, c):
 
 @jit_inline
 def _move(sets, move, old, new):
-    """Move ``move`` from class ``old`` to class ``new`` (either may be -1: no class)."""
+    """Count ``move`` in class ``new`` instead of ``old`` (either may be -1: no class); the
+    caller writes the class array."""
     if old != new:
         if old >= 0:
             _delete(sets, move, old)
@@ -156,10 +180,24 @@ def _move(sets, move, old, new):
             _insert(sets, move, new)
 
 
+_LOW7 = np.uint64(0x7F7F7F7F7F7F7F7F)
+_BYTE_ONES = np.uint64(0x0101010101010101)
+_GATHER = np.uint64(0x0102040810204080)
+
+
+@jit_inline
+def _equal_bytes(word, pattern):
+    """Bit b set where byte b of ``word`` equals that of ``pattern`` (8 bits)."""
+    x = word ^ pattern
+    t = ~(((x & _LOW7) + _LOW7) | x | _LOW7)
+    return ((t >> np.uint64(7)) * _GATHER) >> np.uint64(56)
+
+
 @jit_serial
-def _select(sets, c, k):
-    """The move of rank ``k`` (0-based, in increasing move index) in class ``c``."""
-    bits, counts1, counts2, counts3, counts = sets
+def _select(sets, words, c, k):
+    """The move of rank ``k`` (0-based, in increasing move index) in class ``c``; ``words``
+    is the class array viewed as uint64."""
+    counts0, counts1, counts2, counts3, counts = sets
     j = 0
     while k >= counts3[c, j]:
         k -= counts3[c, j]
@@ -173,16 +211,18 @@ def _select(sets, c, k):
         k -= counts1[c, j]
         j += 1
     i = 0
-    while True:
-        ones = np.int64(_popcount(bits[j, c, i]))
-        if k < ones:
-            break
-        k -= ones
+    while k >= counts0[j, c, i]:
+        k -= counts0[j, c, i]
         i += 1
-    word = bits[j, c, i]
+    w = (j << 4) + i
+    pattern = np.uint64(c) * _BYTE_ONES
+    base = w << 3
+    mask = np.uint64(0)
+    for b in range(8):
+        mask |= _equal_bytes(words[base + b], pattern) << np.uint64(8 * b)
     for _ in range(k):
-        word &= word - np.uint64(1)
-    return (((j << 4) + i) << _WORD_BITS) + np.int64(_trailing_zeros(word))
+        mask &= mask - np.uint64(1)
+    return (w << _WORD_BITS) + np.int64(_trailing_zeros(mask))
 
 
 @jit_serial
@@ -237,29 +277,65 @@ def _coordinates(site, nx, ny, nz):
     return x, rest - plane * ny, plane
 
 
+@jit_inline
+def _direction(forward, k):
+    """Offset (dx, dy, dz) of direction k (k < zf: +forward[k], else -forward[k - zf])."""
+    zf = forward.shape[0]
+    if k < zf:
+        return forward[k, 0], forward[k, 1], forward[k, 2]
+    return -forward[k - zf, 0], -forward[k - zf, 1], -forward[k - zf, 2]
+
+
+@jit_inline
+def _row_neighbour(y, zc, dy, dz, ny, nz, periodic):
+    """Start index / nx of the row at (y + dy, zc + dz); -1 across an open edge."""
+    yn = y + dy
+    zn = zc + dz
+    if periodic:
+        yn %= ny
+        zn %= nz
+    elif not ((0 <= yn < ny) and (0 <= zn < nz)):
+        return np.int64(-1)
+    return zn * ny + yn
+
+
 @jit_serial
 def site_codes(spins, forward, dims, periodic):
-    """Code ``2 (f + z) + (s + 1) / 2`` of every site (spin s, neighbour sum f), int8."""
+    """Code ``2 (f + z) + (s + 1) / 2`` of every site (spin s, neighbour sum f), int8, in an
+    array padded with -1 to whole 64-site words (:func:`padded_classes`)."""
     nx = dims[0]
     ny = dims[1]
     nz = dims[2]
     z = 2 * forward.shape[0]
     n_sites = spins.shape[0]
-    codes = np.empty(n_sites, dtype=np.int8)
+    sums = np.zeros(n_sites, dtype=np.int8)
+    for zc in range(nz):
+        for y in range(ny):
+            row = (zc * ny + y) * nx
+            for k in range(z):
+                dx, dy, dz = _direction(forward, k)
+                other = _row_neighbour(y, zc, dy, dz, ny, nz, periodic)
+                if other < 0:
+                    continue
+                other *= nx
+                lo = min(max(0, -dx), nx)
+                hi = max(min(nx, nx - dx), lo)
+                for x in range(lo, hi):
+                    sums[row + x] += spins[other + x + dx]
+                if periodic:
+                    for x in range(lo):
+                        sums[row + x] += spins[other + (x + dx) % nx]
+                    for x in range(hi, nx):
+                        sums[row + x] += spins[other + (x + dx) % nx]
+    codes = padded_classes(n_sites)
     for i in range(n_sites):
-        x, y, zc = _coordinates(i, nx, ny, nz)
-        f = 0
-        for k in range(z):
-            n = _neighbour(x, y, zc, k, forward, nx, ny, nz, periodic)[0]
-            if n >= 0:
-                f += spins[n]
-        codes[i] = 2 * (f + z) + ((spins[i] + 1) >> 1)
+        codes[i] = 2 * (sums[i] + z) + ((spins[i] + 1) >> 1)
     return codes
 
 
 @jit_serial
 def _write_spins(codes, spins):
-    for i in range(codes.shape[0]):
+    for i in range(spins.shape[0]):
         spins[i] = 2 * (codes[i] & 1) - 1
 
 
@@ -307,12 +383,9 @@ def _waiting_time(draw, scale, total):
 # Glauber
 # --------------------------------------------------------------------------------------------
 @jit_serial
-def glauber_classes(codes, n_classes):
+def glauber_classes(codes, n_sites, n_classes):
     """Class sets of Glauber flips built from scratch: site i in class ``codes[i]``."""
-    sets = new_class_sets(n_classes, codes.shape[0])
-    for i in range(codes.shape[0]):
-        _insert(sets, i, np.int64(codes[i]))
-    return sets
+    return _count_members(codes, n_sites, n_classes)
 
 
 @jit_serial
@@ -331,8 +404,10 @@ def _glauber_replica(spins, state, up_limits, forward, dims, periodic, sweeps, v
     nz = dims[2]
     z = 2 * forward.shape[0]
     n_classes = up_limits.shape[1] * up_limits.shape[2]
+    n_sites = spins.shape[0]
     codes = site_codes(spins, forward, dims, periodic)
-    sets = glauber_classes(codes, n_classes)
+    words = codes.view(np.uint64)
+    sets = glauber_classes(codes, n_sites, n_classes)
     counts = sets[4]
     rates = np.zeros(n_classes, dtype=np.int64)
     buffer = np.empty(LANES, dtype=np.uint64)
@@ -351,7 +426,7 @@ def _glauber_replica(spins, state, up_limits, forward, dims, periodic, sweeps, v
                 break
             v, used = _next_draw(state, buffer, used)
             c, rank = _pick(counts, rates, total, v)
-            site = _select(sets, c, rank)
+            site = _select(sets, words, c, rank)
             _move(sets, site, c, c ^ 1)
             codes[site] = c ^ 1
             total += rates[c ^ 1] - rates[c]
@@ -369,7 +444,7 @@ def _glauber_replica(spins, state, up_limits, forward, dims, periodic, sweeps, v
         if verify:
             _write_spins(codes, spins)
             fresh = site_codes(spins, forward, dims, periodic)
-            mismatches += _differences(sets, glauber_classes(fresh, n_classes))
+            mismatches += _differences(sets, glauber_classes(fresh, n_sites, n_classes))
             if not np.array_equal(codes, fresh):
                 mismatches += 1
     _write_spins(codes, spins)
@@ -426,31 +501,65 @@ def _bond_class(code_a, code_b, z):
 
 @jit_serial
 def kawasaki_classes(codes, forward, dims, periodic, n_classes):
-    """Class sets of Kawasaki exchanges built from scratch, over the ``N * zf`` bond slots
-    (slot ``a * zf + j`` joins a and its neighbour at ``forward[j]``; slots across an open
-    edge and between equal spins are in no class)."""
+    """Class array and class sets of Kawasaki exchanges built from scratch, over the
+    ``N * zf`` bond slots (slot ``a * zf + j`` joins a and its neighbour at ``forward[j]``;
+    slots across an open edge and between equal spins are in no class, -1)."""
     nx = dims[0]
     ny = dims[1]
     nz = dims[2]
     zf = forward.shape[0]
     z = 2 * zf
-    n_sites = codes.shape[0]
-    sets = new_class_sets(n_classes, n_sites * zf)
-    for a in range(n_sites):
-        x, y, zc = _coordinates(a, nx, ny, nz)
-        for j in range(zf):
-            b = _neighbour(x, y, zc, j, forward, nx, ny, nz, periodic)[0]
-            if b >= 0:
-                c = _bond_class(codes[a], codes[b], z)
-                if c >= 0:
-                    _insert(sets, a * zf + j, c)
-    return sets
+    n_slots = (nx * ny * nz) * zf
+    classes = padded_classes(n_slots)
+    for zc in range(nz):
+        for y in range(ny):
+            row = (zc * ny + y) * nx
+            for j in range(zf):
+                dx = forward[j, 0]
+                other = _row_neighbour(y, zc, forward[j, 1], forward[j, 2], ny, nz, periodic)
+                if other < 0:
+                    continue
+                other *= nx
+                for x in range(nx):
+                    xn = x + dx
+                    if xn < 0 or xn >= nx:
+                        if not periodic:
+                            continue
+                        xn %= nx
+                    a = row + x
+                    classes[a * zf + j] = _bond_class(codes[a], codes[other + xn], z)
+    return classes, _count_members(classes, n_slots, n_classes)
 
 
 @jit_serial
 def _kawasaki_rates(limits, rates):
     for c in range(limits.shape[0]):
         rates[c] = np.int64(limits[c]) + 1
+
+
+@jit_inline
+def _update_bonds(codes, slot_classes, sets, rates, p, x, y, zc, forward, dims, periodic):
+    """Bring the classes of the z bonds of site p (at x, y, zc) up to date with the codes;
+    returns the change of the total rate."""
+    zf = forward.shape[0]
+    z = 2 * zf
+    change = np.int64(0)
+    for k in range(z):
+        q = _neighbour(x, y, zc, k, forward, dims[0], dims[1], dims[2], periodic)[0]
+        if q < 0:
+            continue
+        if k < zf:
+            slot = p * zf + k
+            new = _bond_class(codes[p], codes[q], z)
+        else:
+            slot = q * zf + (k - zf)
+            new = _bond_class(codes[q], codes[p], z)
+        old = np.int64(slot_classes[slot])
+        if new != old:
+            _move(sets, slot, old, new)
+            slot_classes[slot] = new
+            change += (rates[new] if new >= 0 else 0) - (rates[old] if old >= 0 else 0)
+    return change
 
 
 @jit_serial
@@ -463,14 +572,11 @@ def _kawasaki_replica(spins, state, exchange_limits, forward, dims, periodic, sw
     z = 2 * zf
     n_classes = exchange_limits.shape[1]
     codes = site_codes(spins, forward, dims, periodic)
-    sets = kawasaki_classes(codes, forward, dims, periodic, n_classes)
+    slot_classes, sets = kawasaki_classes(codes, forward, dims, periodic, n_classes)
+    words = slot_classes.view(np.uint64)
     counts = sets[4]
     rates = np.zeros(n_classes, dtype=np.int64)
     buffer = np.empty(LANES, dtype=np.uint64)
-    # the sites whose spin or neighbour sum an exchange changes, with coordinates
-    touched = np.empty((2 * z + 2, 4), dtype=np.int64)
-    # the bonds of those sites: slot, its two sites, class before the exchange
-    bonds = np.empty((z * (2 * z + 2), 4), dtype=np.int64)
     n_tables = exchange_limits.shape[0]
     # a slot's rate per sweep is (2 / z) rate / 2**31
     scale = np.float64(RATE_ONE) * z / 2.0
@@ -488,49 +594,11 @@ def _kawasaki_replica(spins, state, exchange_limits, forward, dims, periodic, sw
                 break
             v, used = _next_draw(state, buffer, used)
             c, rank = _pick(counts, rates, total, v)
-            slot = _select(sets, c, rank)
+            slot = _select(sets, words, c, rank)
             a = slot // zf
+            j = slot - a * zf
             xa, ya, za = _coordinates(a, nx, ny, nz)
-            b, xb, yb, zb = _neighbour(xa, ya, za, slot - a * zf, forward, nx, ny, nz,
-                                       periodic)
-            # touched sites: a, b and their neighbours, each once (marked in its code)
-            touched[0, 0] = a
-            touched[0, 1] = xa
-            touched[0, 2] = ya
-            touched[0, 3] = za
-            touched[1, 0] = b
-            touched[1, 1] = xb
-            touched[1, 2] = yb
-            touched[1, 3] = zb
-            codes[a] |= _MARK
-            codes[b] |= _MARK
-            n_touched = 2
-            for centre in range(2):
-                for k in range(z):
-                    n, x, y, zc = _neighbour(touched[centre, 1], touched[centre, 2],
-                                             touched[centre, 3], k, forward, nx, ny, nz,
-                                             periodic)
-                    if n >= 0 and not (codes[n] & _MARK):
-                        touched[n_touched, 0] = n
-                        touched[n_touched, 1] = x
-                        touched[n_touched, 2] = y
-                        touched[n_touched, 3] = zc
-                        codes[n] |= _MARK
-                        n_touched += 1
-            # their bonds, each once, with the class before the exchange
-            n_bonds = 0
-            for i in range(n_touched):
-                p = touched[i, 0]
-                for k in range(z):
-                    q = _neighbour(touched[i, 1], touched[i, 2], touched[i, 3], k, forward,
-                                   nx, ny, nz, periodic)[0]
-                    if q < 0 or ((codes[q] & _MARK) and q < p):
-                        continue
-                    bonds[n_bonds, 0] = p * zf + k if k < zf else q * zf + (k - zf)
-                    bonds[n_bonds, 1] = p
-                    bonds[n_bonds, 2] = q
-                    bonds[n_bonds, 3] = _bond_class(codes[p] & ~_MARK, codes[q] & ~_MARK, z)
-                    n_bonds += 1
+            b, xb, yb, zb = _neighbour(xa, ya, za, j, forward, nx, ny, nz, periodic)
             # the exchange: spins of a and b swap, neighbour sums change by -+ 2 s_a
             delta = 4 * (2 * np.int64(codes[a] & 1) - 1)
             codes[a] ^= 1
@@ -542,20 +610,32 @@ def _kawasaki_replica(spins, state, exchange_limits, forward, dims, periodic, sw
                 n = _neighbour(xb, yb, zb, k, forward, nx, ny, nz, periodic)[0]
                 if n >= 0:
                     codes[n] += delta
-            for i in range(n_bonds):
-                old = bonds[i, 3]
-                new = _bond_class(codes[bonds[i, 1]] & ~_MARK, codes[bonds[i, 2]] & ~_MARK, z)
-                if new != old:
-                    _move(sets, bonds[i, 0], old, new)
-                    total += (rates[new] if new >= 0 else 0) - (rates[old] if old >= 0 else 0)
-            for i in range(n_touched):
-                codes[touched[i, 0]] &= ~_MARK
+            # the bonds of every site whose code changed: a, b and their neighbours (a site
+            # seen twice finds its bonds already up to date)
+            total += _update_bonds(codes, slot_classes, sets, rates, a, xa, ya, za, forward,
+                                   dims, periodic)
+            total += _update_bonds(codes, slot_classes, sets, rates, b, xb, yb, zb, forward,
+                                   dims, periodic)
+            for k in range(z):
+                if k != j:  # b, done
+                    n, x, y, zc = _neighbour(xa, ya, za, k, forward, nx, ny, nz, periodic)
+                    if n >= 0:
+                        total += _update_bonds(codes, slot_classes, sets, rates, n, x, y, zc,
+                                               forward, dims, periodic)
+                if k != j + zf:  # a, done
+                    n, x, y, zc = _neighbour(xb, yb, zb, k, forward, nx, ny, nz, periodic)
+                    if n >= 0:
+                        total += _update_bonds(codes, slot_classes, sets, rates, n, x, y, zc,
+                                               forward, dims, periodic)
             moves += 1
         if verify:
             _write_spins(codes, spins)
             fresh = site_codes(spins, forward, dims, periodic)
-            mismatches += _differences(
-                sets, kawasaki_classes(fresh, forward, dims, periodic, n_classes))
+            fresh_classes, fresh_sets = kawasaki_classes(fresh, forward, dims, periodic,
+                                                         n_classes)
+            mismatches += _differences(sets, fresh_sets)
+            if not np.array_equal(slot_classes, fresh_classes):
+                mismatches += 1
             if not np.array_equal(codes, fresh):
                 mismatches += 1
     _write_spins(codes, spins)

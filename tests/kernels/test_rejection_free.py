@@ -171,13 +171,14 @@ def test_recount_detects_a_corrupted_list():
     spins = random_spins(np.random.default_rng(2), 1, lattice)[0].ravel()
     forward, dims = _geometry(lattice)
     codes = kernel.site_codes(spins, forward, dims, True)
-    good = kernel.glauber_classes(codes, 18)
-    assert kernel._differences(good, kernel.glauber_classes(codes, 18)) == 0
-    wrong = kernel.glauber_classes(codes, 18)
+    n = lattice.n_sites
+    good = kernel.glauber_classes(codes, n, 18)
+    assert kernel._differences(good, kernel.glauber_classes(codes, n, 18)) == 0
+    wrong = kernel.glauber_classes(codes, n, 18)
     c = int(codes[77])
     kernel._move(wrong, 77, c, c ^ 1)
     assert kernel._differences(good, wrong) == 5
-    wrong = kernel.glauber_classes(codes, 18)
+    wrong = kernel.glauber_classes(codes, n, 18)
     wrong[2][0, 0] += 1
     assert kernel._differences(good, wrong) == 1
 
@@ -187,12 +188,15 @@ def test_select_returns_members_in_site_order():
     spins = random_spins(np.random.default_rng(3), 1, lattice)[0].ravel()
     forward, dims = _geometry(lattice)
     codes = kernel.site_codes(spins, forward, dims, True)
-    sets = kernel.glauber_classes(codes, 18)
-    for c in np.unique(codes):
+    assert codes.size % 64 == 0 and np.all(codes[lattice.n_sites:] == -1)
+    sets = kernel.glauber_classes(codes, lattice.n_sites, 18)
+    words = codes.view(np.uint64)
+    for c in np.unique(codes[:lattice.n_sites]):
         members = np.flatnonzero(codes == c)
         ranks = np.unique(np.r_[0, len(members) - 1, np.linspace(0, len(members) - 1, 40)
                                 .astype(int)])
-        assert [kernel._select(sets, int(c), int(k)) for k in ranks] == list(members[ranks])
+        assert ([kernel._select(sets, words, int(c), int(k)) for k in ranks]
+                == list(members[ranks]))
 
 
 # --------------------------------------------------------------------------------------------
