@@ -498,7 +498,7 @@ def _add_plot(subcommands) -> None:
         help="draw a run, fit or collapse dataset as a figure (.png, .pdf, .svg)",
         description=(
             "Draw one kind of figure from a dataset: growth (L(t) per estimator, with a fit's "
-            "median and 95%% band from --fit), exponent (n_eff(t)), collapse, structure "
+            "median and 95% band from --fit), exponent (n_eff(t)), collapse, structure "
             "(S(k, t)), snapshots, posterior (corner plot of a fit or collapse), protocol "
             "(T(t) above L(t)) or seeded (seeded-domain area and interfaces)."
         ),
