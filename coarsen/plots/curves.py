@@ -281,11 +281,15 @@ def plot_posterior(source, *, bins: int = 40, title=None):
                     ax.set_title(f"{_PARAMETER_LABELS.get(names[i], names[i])} = "
                                  f"{median:.4g} [{low:.4g}, {high:.4g}]", fontsize=6.5)
                     if names[i] == "n":
-                        for exponent, text in ((0.5, "1/2"), (1.0 / 3.0, "1/3")):
+                        # 1/2 labelled right of its line, 1/3 left of its line, at two
+                        # heights, so that the labels never overlap when the lines are close
+                        for exponent, text, dx, dy, align in ((0.5, "1/2", 2, -2, "left"),
+                                                              (1.0 / 3.0, "1/3", -2, -10,
+                                                               "right")):
                             if values.min() <= exponent <= values.max():
                                 ax.axvline(exponent, color=LINE_COLOURS[2], ls="--", lw=0.8)
                                 ax.annotate(text, (exponent, 1.0), xycoords=("data",
-                                            "axes fraction"), xytext=(1, -2),
+                                            "axes fraction"), xytext=(dx, dy), ha=align,
                                             textcoords="offset points", va="top", fontsize=6,
                                             color=LINE_COLOURS[2])
                 else:
