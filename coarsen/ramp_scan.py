@@ -22,6 +22,7 @@ from typing import Callable
 import numpy as np
 import xarray as xr
 
+from coarsen.checkpoint import remove_stale_temporaries
 from coarsen.dataset import open_dataset, write_dataset
 
 __all__ = ["combine_ramp_datasets", "run_ramp_scan"]
@@ -115,6 +116,7 @@ def run_ramp_scan(spec, output, *, threads: int | None = None, resume: bool = Fa
     for index, duration in enumerate(spec.ramp_times):
         variant = spec.variant(index)
         part = _part_path(output, index, "part")
+        remove_stale_temporaries(part)
         done = _finished_part(part, variant) if resume else None
         if done is not None:
             notify(f"ramp time {duration:g}: reusing the finished run {str(part)!r}")

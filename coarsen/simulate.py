@@ -379,6 +379,8 @@ def run_spec(spec, output, *, threads: int | None = None, resume: bool = False,
         raise ValueError(f"output {str(output)!r}: the directory {str(output.parent)!r} "
                          "does not exist")
     _check_not_an_input(spec, output)
+    # a run killed while writing its dataset leaves a temporary beside it
+    remove_stale_temporaries(output)
     if spec.is_ramp_scan:
         from coarsen.ramp_scan import run_ramp_scan
 

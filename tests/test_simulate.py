@@ -149,6 +149,18 @@ def test_resume_without_checkpoint_starts_afresh(tmp_path):
     assert any("starting afresh" in m for m in messages)
 
 
+def test_temporary_of_a_killed_dataset_write_is_removed(tmp_path):
+    """A run killed while writing its dataset leaves ``.out.nc.<random>.tmp``; the next run
+    (resumed or not) removes it (found by the SIGKILL trials of test_crash_safety)."""
+    stale = tmp_path / ".out.nc.k1ll3d.tmp"
+    stale.write_bytes(b"half a NetCDF file")
+    other = tmp_path / ".other.nc.k1ll3d.tmp"
+    other.write_bytes(b"not ours")
+    run_spec(parse_spec(_spec_text(replicas=1, snapshots=0)), tmp_path / "out.nc", resume=True)
+    assert not stale.exists() and other.exists()
+    assert (tmp_path / "out.nc").is_file()
+
+
 def test_checkpoint_of_another_spec_is_refused(tmp_path):
     spec = parse_spec(_spec_text(seed=5))
     checkpoint = tmp_path / "x.checkpoint"
