@@ -26,6 +26,8 @@ from pathlib import Path
 
 import numpy as np
 
+from coarsen.fit.inputs import table_text
+
 __all__ = [
     "CURVE_COLUMNS",
     "DEFAULT_KMAX",
@@ -215,13 +217,7 @@ def read_curve_table(path) -> CurveFamily:
         finite number, an error <= 0, fewer than two curves.
     """
     path = Path(path)
-    name = f"curve table {str(path)!r}"
-    if not path.is_file():
-        raise ValueError(f"{name}: no such file")
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError:
-        raise ValueError(f"{name}: not a text file (UTF-8)") from None
+    name, text = table_text(path, "curve table")
     lines = [line for line in text.splitlines() if line.strip() and
              not line.strip().startswith("#")]
     if not lines:

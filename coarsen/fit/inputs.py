@@ -29,6 +29,7 @@ __all__ = [
     "growth_data_from_dataset",
     "load_growth_data",
     "read_length_table",
+    "table_text",
 ]
 
 #: The estimator a fit uses unless told otherwise (the one ``coarsen run --lengths-csv`` writes).
@@ -125,6 +126,23 @@ def _estimator_from_comments(comments: list[str]) -> str | None:
     return None
 
 
+def table_text(path: Path, what: str) -> tuple[str, str]:
+    """``(name, text)`` of a CSV table file; ``name`` ("<what> '<path>'") starts every error.
+
+    Raises
+    ------
+    ValueError
+        When the file is missing or not UTF-8 text.
+    """
+    name = f"{what} {str(path)!r}"
+    if not path.is_file():
+        raise ValueError(f"{name}: no such file")
+    try:
+        return name, path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError:
+        raise ValueError(f"{name}: not a text file (UTF-8)") from None
+
+
 def read_length_table(path) -> GrowthData:
     """Read and validate a CSV length table.
 
@@ -151,13 +169,7 @@ def read_length_table(path) -> GrowthData:
         fewer than two rows.
     """
     path = Path(path)
-    name = f"length table {str(path)!r}"
-    if not path.is_file():
-        raise ValueError(f"{name}: no such file")
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError:
-        raise ValueError(f"{name}: not a text file (UTF-8)") from None
+    name, text = table_text(path, "length table")
     comments, lines = [], []
     for number, line in enumerate(text.splitlines(), start=1):
         stripped = line.strip()
