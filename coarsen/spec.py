@@ -282,21 +282,29 @@ def load_spec(path) -> Spec:
         or any key is wrong; the message starts with the file name.
     """
     source = os.fspath(path)
+    text = read_toml_text(source, SpecError, "spec file", "a spec is a TOML text file")
+    return parse_spec(text, source)
+
+
+def read_toml_text(source: str, error: type, what: str, kind: str) -> str:
+    """The UTF-8 text of a TOML file; ``error(message, source=source)`` when it can't be read.
+
+    ``what`` names the file in the messages ("spec file"), ``kind`` says what it should be
+    when it is not UTF-8 ("a spec is a TOML text file").
+    """
     try:
         with open(source, "rb") as handle:
             raw = handle.read()
     except FileNotFoundError:
-        raise SpecError("no such spec file", source=source) from None
+        raise error(f"no such {what}", source=source) from None
     except IsADirectoryError:
-        raise SpecError("is a directory, not a spec file", source=source) from None
-    except OSError as error:
-        raise SpecError(f"cannot read the spec file ({error.strerror})", source=source) from None
+        raise error(f"is a directory, not a {what}", source=source) from None
+    except OSError as problem:
+        raise error(f"cannot read the {what} ({problem.strerror})", source=source) from None
     try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as error:
-        raise SpecError(f"not UTF-8 text (byte {error.start}); a spec is a TOML text file",
-                        source=source) from None
-    return parse_spec(text, source)
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as problem:
+        raise error(f"not UTF-8 text (byte {problem.start}); {kind}", source=source) from None
 
 
 def parse_spec(text: str, source: str | None = None) -> Spec:

@@ -53,7 +53,14 @@ from pathlib import Path
 import numpy as np
 
 from coarsen._validation import ParameterError, check_choice, check_integer, did_you_mean
-from coarsen.spec import DEFAULT_REPLICAS, TABLE_KEYS, SpecError, spec_from_mapping, to_toml
+from coarsen.spec import (
+    DEFAULT_REPLICAS,
+    TABLE_KEYS,
+    SpecError,
+    read_toml_text,
+    spec_from_mapping,
+    to_toml,
+)
 
 __all__ = [
     "COMBINE_MODES",
@@ -195,20 +202,7 @@ def load_sweep(path) -> Sweep:
         If the file is missing, is not TOML, or any key is wrong (the message names it).
     """
     source = os.fspath(path)
-    try:
-        with open(source, "rb") as handle:
-            raw = handle.read()
-    except FileNotFoundError:
-        raise SweepError("no such sweep file", source=source) from None
-    except IsADirectoryError:
-        raise SweepError("is a directory, not a sweep file", source=source) from None
-    except OSError as error:
-        raise SweepError(f"cannot read the sweep file ({error.strerror})", source=source) from None
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as error:
-        raise SweepError(f"not UTF-8 text (byte {error.start}); a sweep file is TOML",
-                         source=source) from None
+    text = read_toml_text(source, SweepError, "sweep file", "a sweep file is TOML")
     return parse_sweep(text, source)
 
 
