@@ -45,10 +45,10 @@ __all__ = [
     "check_dynamics",
     "energy_per_site",
     "exchange_probabilities",
+    "flip_probabilities",
     "magnetization_per_site",
     "make_streams",
     "substreams_needed",
-    "up_probabilities",
 ]
 
 RULES = ("glauber", "kawasaki", "kawasaki-nonlocal")
@@ -186,9 +186,9 @@ def _heat_bath(energy_change: float, temperature: float) -> float:
     return _logistic(-energy_change / temperature)
 
 
-def up_probabilities(temperature: float, coordination: int, J: float = 1.0, h: float = 0.0,
-                     acceptance: str = "heat-bath") -> np.ndarray:
-    """Probability that a Glauber update leaves the spin up, for every old spin and field.
+def flip_probabilities(temperature: float, coordination: int, J: float = 1.0, h: float = 0.0,
+                       acceptance: str = "heat-bath") -> np.ndarray:
+    """Probability that a Glauber update flips the spin, for every old spin and field.
 
     Parameters
     ----------
@@ -199,26 +199,31 @@ def up_probabilities(temperature: float, coordination: int, J: float = 1.0, h: f
     J, h : float
         Coupling and uniform field.
     acceptance : {"heat-bath", "metropolis"}
-        Heat-bath sets the spin up with probability 1 / (1 + exp(-2 (J f + h) / T)) whatever
-        its old value; Metropolis flips it with probability min(1, exp(-dE / T)),
-        dE = 2 s (J f + h).
+        With dE = 2 s (J f + h) the energy change of flipping spin s, heat-bath flips with
+        probability 1 / (1 + exp(dE / T)) and Metropolis with min(1, exp(-dE / T)).
 
     Returns
     -------
     ndarray of shape (2, 2 z + 1)
         Row 0 for old spin -1, row 1 for +1; column ``f + z``.
+
+    Notes
+    -----
+    Each entry is computed from dE alone, so it is the same float for every (s, f) with the
+    same s (J f + h). With h = 0, the sublattice gauge s -> (-1)**sublattice s of a bipartite
+    lattice maps (J, s, f) to (-J, s', f') with the same dE, hence the same entry, and the
+    kernels' decision "flip when the word is at most the threshold" then makes the same
+    moves: an antiferromagnet's run is its ferromagnet's run, staggered, bit for bit.
     """
     _choice(acceptance, ACCEPTANCES, "acceptance")
     z = coordination
     table = np.empty((2, 2 * z + 1))
     for row, old in enumerate((-1, 1)):
         for f in range(-z, z + 1):
-            local = J * f + h
-            if acceptance == "heat-bath":
-                table[row, f + z] = _heat_bath(-2.0 * local, temperature)
-            else:
-                flip = _boltzmann_ratio(2.0 * old * local, temperature)
-                table[row, f + z] = flip if old < 0 else 1.0 - flip
+            energy_change = 2.0 * old * (J * f + h)
+            table[row, f + z] = (_heat_bath(energy_change, temperature)
+                                 if acceptance == "heat-bath"
+                                 else _boltzmann_ratio(energy_change, temperature))
     return table
 
 
@@ -397,7 +402,7 @@ def advance(spins: np.ndarray, streams: np.ndarray, lattice: Lattice, sweeps: in
         cache = {}
         for pair in _protocol_pairs(temps, fields):
             if pair not in cache:
-                cache[pair] = _limits(up_probabilities(pair[0], z, J, pair[1], acceptance))
+                cache[pair] = _limits(flip_probabilities(pair[0], z, J, pair[1], acceptance))
         tables = np.stack([cache[pair] for pair in _protocol_pairs(temps, fields)])
         if update == "random":
             glauber_random_sequential(flat, streams[:, 0], tables, dims, kind, periodic,

@@ -58,7 +58,7 @@ def advance_events(flat_spins: np.ndarray, streams: np.ndarray, limits: np.ndarr
         One stream per replica, advanced in place.
     limits : ndarray of dtype int32
         The engine's threshold tables, one per sweep: (sweeps, 2, 2 z + 1) for Glauber
-        (``up_probabilities``), (sweeps, 4 z + 3) for Kawasaki (``exchange_probabilities``).
+        (``flip_probabilities``), (sweeps, 4 z + 3) for Kawasaki (``exchange_probabilities``).
     lattice : Lattice
     rule : {"glauber", "kawasaki"}
     sweeps : int
@@ -115,7 +115,7 @@ def class_list_mismatches(spins: np.ndarray, streams: np.ndarray, lattice: Latti
     temperatures = np.broadcast_to(np.asarray(temperature, dtype=float), (int(sweeps),))
     z = lattice.coordination
     if rule == "glauber":
-        tables = [engine.up_probabilities(t, z, J, h, acceptance) for t in temperatures]
+        tables = [engine.flip_probabilities(t, z, J, h, acceptance) for t in temperatures]
     else:
         tables = [engine.exchange_probabilities(t, z, J, acceptance) for t in temperatures]
     limits = np.stack([engine._limits(p) for p in tables])

@@ -3,7 +3,7 @@
 Nothing here calls a kernel, and nothing reads the engine's geometry: neighbours are found
 from site coordinates with the offsets written out below (the order the kernels document for
 the Kawasaki bond direction), and energies are bond loops over those lists. The only engine
-functions used are the probability tables ``coarsen.engine.up_probabilities`` and
+functions used are the probability tables ``coarsen.engine.flip_probabilities`` and
 ``coarsen.engine.exchange_probabilities``, turned into integer thresholds by the documented
 formula ``floor(p * 2**31) - 1`` (capped at ``2**31 - 1``).
 
@@ -29,7 +29,7 @@ import math
 
 import numpy as np
 
-from coarsen.engine import exchange_probabilities, up_probabilities
+from coarsen.engine import exchange_probabilities, flip_probabilities
 
 __all__ = [
     "LANES",
@@ -270,8 +270,9 @@ def _field(s, site, geometry):
 
 
 def _glauber_decision(word, old, field, table, z):
+    """The new spin: ``old`` flips when the word's top 31 bits are at most its threshold."""
     row = 0 if old == -1 else 1
-    return 1 if (word >> 1) <= table[row][field + z] else -1
+    return -old if (word >> 1) <= table[row][field + z] else old
 
 
 def _site_attempts(stream: Stream, geometry: Geometry, per: int):
@@ -294,7 +295,7 @@ def _site_attempts(stream: Stream, geometry: Geometry, per: int):
 
 
 def glauber_sweep(s: list[int], stream: Stream, geometry: Geometry, table) -> int:
-    """One random-sequential Glauber sweep; ``table[row][field + z]`` are up thresholds."""
+    """One random-sequential Glauber sweep; ``table[row][field + z]`` are flip thresholds."""
     changed = 0
     for site, w in _site_attempts(stream, geometry, geometry.dimension + 1):
         old = s[site]
@@ -401,7 +402,7 @@ def advance(spins, streams, lattice, sweeps, temperature, *, rule="glauber",
         T = float(temps[min(t, len(temps) - 1)])
         if T not in tables:
             if rule == "glauber":
-                p = up_probabilities(T, z, J, h, acceptance)
+                p = flip_probabilities(T, z, J, h, acceptance)
                 tables[T] = [[threshold(v) for v in row] for row in p]
             else:
                 p = exchange_probabilities(T, z, J, acceptance)
@@ -526,7 +527,7 @@ def checkerboard_sweeps_numpy(spins, streams, lattice, table):
             field = sum(_neighbour_spin(s, off, periodic) for off in offsets)
             old = s[mask]
             thr = table[(old + 1) // 2, field[mask] + z]
-            new = np.where((w >> np.uint64(1)).astype(np.int64) <= thr, 1, -1)
+            new = np.where((w >> np.uint64(1)).astype(np.int64) <= thr, -old, old)
             changed[r] += int(np.count_nonzero(new != old))
             s[mask] = new
         spins[r] = s.reshape(spins.shape[1:]).astype(np.int8)

@@ -7,9 +7,9 @@ from coarsen.engine import (
     advance,
     energy_per_site,
     exchange_probabilities,
+    flip_probabilities,
     magnetization_per_site,
     make_streams,
-    up_probabilities,
 )
 from coarsen.lattice import Lattice
 from tests import reference
@@ -125,11 +125,12 @@ def test_kawasaki_never_raises_energy_at_zero_temperature(rule, acceptance):
 
 def test_zero_temperature_tables_are_exact():
     # heat-bath: dE < 0 always, dE = 0 with 1/2, dE > 0 never; Metropolis: dE <= 0 always.
-    hb = up_probabilities(0.0, 4, J=1.0, h=0.0, acceptance="heat-bath")
+    hb = flip_probabilities(0.0, 4, J=1.0, h=0.0, acceptance="heat-bath")
     # columns f = -4 .. 4; rows old spin -1, +1
-    np.testing.assert_array_equal(hb, [[0, 0, 0, 0, 0.5, 1, 1, 1, 1]] * 2)
-    me = up_probabilities(0.0, 4, J=1.0, h=0.0, acceptance="metropolis")
-    np.testing.assert_array_equal(me, [[0, 0, 0, 0, 1, 1, 1, 1, 1], [0, 0, 0, 0, 0, 1, 1, 1, 1]])
+    np.testing.assert_array_equal(hb, [[0, 0, 0, 0, 0.5, 1, 1, 1, 1],
+                                       [1, 1, 1, 1, 0.5, 0, 0, 0, 0]])
+    me = flip_probabilities(0.0, 4, J=1.0, h=0.0, acceptance="metropolis")
+    np.testing.assert_array_equal(me, [[0, 0, 0, 0, 1, 1, 1, 1, 1], [1, 1, 1, 1, 1, 0, 0, 0, 0]])
     ex = exchange_probabilities(0.0, 2, acceptance="heat-bath")  # q = -4 .. 6
     np.testing.assert_array_equal(ex, [1, 1, 1, 1, 0.5, 0, 0, 0, 0, 0, 0])
     assert [reference.threshold(p) for p in (0.0, 0.5, 1.0)] == [-1, 2**30 - 1, 2**31 - 1]
@@ -138,16 +139,13 @@ def test_zero_temperature_tables_are_exact():
 @pytest.mark.parametrize("acceptance", ["heat-bath", "metropolis"])
 def test_probability_tables_follow_their_formulas(acceptance):
     T, J, h, z = 1.7, -1.0, 0.4, 6
-    table = up_probabilities(T, z, J, h, acceptance)
+    table = flip_probabilities(T, z, J, h, acceptance)
     for row, old in enumerate((-1, 1)):
         for f in range(-z, z + 1):
-            local = J * f + h
-            if acceptance == "heat-bath":
-                p_up = 1.0 / (1.0 + np.exp(-2.0 * local / T))
-            else:
-                flip = min(1.0, np.exp(-2.0 * old * local / T))
-                p_up = flip if old == -1 else 1.0 - flip
-            assert table[row, f + z] == pytest.approx(p_up, rel=1e-12, abs=1e-15)
+            dE = 2.0 * old * (J * f + h)
+            p_flip = (1.0 / (1.0 + np.exp(dE / T)) if acceptance == "heat-bath"
+                      else min(1.0, np.exp(-dE / T)))
+            assert table[row, f + z] == pytest.approx(p_flip, rel=1e-12, abs=1e-15)
     ex = exchange_probabilities(T, z, J, acceptance)
     for q in range(-2 * z, 2 * z + 3):
         dE = 2.0 * J * q

@@ -8,7 +8,7 @@ for its m-th site. Results therefore depend on the block layout, never on the th
 
 Bipartite lattices (chain, square, cubic) use the colour-split layout: ``halves[r, c, row, m]``
 is the spin at ``x = 2 m + ((row_parity[row] + c) & 1)`` of that row, so a colour's sites in a
-row are contiguous and the update loop vectorises. The decision "new spin up" is the test
+row are contiguous and the update loop vectorises. The decision "flip" is the test
 ``w >> 1 <= limit[old, f]`` of the other kernels, written without a table lookup: for the few
 field values f_j that occur in a row, ``OR_j (f == f_j AND w >> 1 <= limit[old, f_j])``.
 Rows are updated in *runs* of consecutive rows whose neighbour rows across y and z are
@@ -195,17 +195,17 @@ def _decide(me, m0, tsum, t0, words, w0, n, plus, minus, fields, n_thr):
         old = me[np.uint64(m0 + i)]
         was_up = old > 0
         x = np.int32(words[np.uint64(w0 + i)] >> np.uint32(1))
-        up = (((field == f0) & (x <= (p0 if was_up else q0)))
-              | ((field == f1) & (x <= (p1 if was_up else q1)))
-              | ((field == f2) & (x <= (p2 if was_up else q2))))
+        flip = (((field == f0) & (x <= (p0 if was_up else q0)))
+                | ((field == f1) & (x <= (p1 if was_up else q1)))
+                | ((field == f2) & (x <= (p2 if was_up else q2))))
         if n_thr > 3:
-            up = (up | ((field == f3) & (x <= (p3 if was_up else q3)))
-                  | ((field == f4) & (x <= (p4 if was_up else q4))))
+            flip = (flip | ((field == f3) & (x <= (p3 if was_up else q3)))
+                    | ((field == f4) & (x <= (p4 if was_up else q4))))
         if n_thr > 5:
-            up = (up | ((field == f5) & (x <= (p5 if was_up else q5)))
-                  | ((field == f6) & (x <= (p6 if was_up else q6))))
-        new = np.int8(1) if up else np.int8(-1)
-        changed = np.int32(changed + np.int32(new != old))
+            flip = (flip | ((field == f5) & (x <= (p5 if was_up else q5)))
+                    | ((field == f6) & (x <= (p6 if was_up else q6))))
+        new = np.int8(-old) if flip else old
+        changed = np.int32(changed + np.int32(flip))
         me[np.uint64(m0 + i)] = new
     return np.int64(changed)
 
@@ -217,7 +217,7 @@ def _decide_edge(me, m, field, x_word, table):
     z = (table.shape[1] - 1) // 2
     old = me[np.uint64(m)]
     x = np.int32(x_word >> np.uint32(1))
-    new = np.int8(1) if x <= table[(old + 1) >> 1, field + z] else np.int8(-1)
+    new = np.int8(-old) if x <= table[(old + 1) >> 1, field + z] else old
     me[np.uint64(m)] = new
     return np.int64(new != old)
 
@@ -288,7 +288,7 @@ _block_7 = _make_block(7)
 
 
 @jit_parallel
-def glauber_checkerboard_bipartite(halves, states, up_limits, row_parity, row_neighbours,
+def glauber_checkerboard_bipartite(halves, states, flip_limits, row_parity, row_neighbours,
                                    block_rows, periodic, sweeps, flips):
     """Advance colour-split configurations by ``sweeps`` two-colour sweeps, in place.
 
@@ -298,7 +298,7 @@ def glauber_checkerboard_bipartite(halves, states, up_limits, row_parity, row_ne
         Colour-split configurations (:func:`split_colours`), modified in place.
     states : ndarray of shape (R, S, 4 * LANES) and dtype uint64
         One stream per replica and row block, advanced in place.
-    up_limits : ndarray of shape (n_tables, 2, 2 z + 1) and dtype int32
+    flip_limits : ndarray of shape (n_tables, 2, 2 z + 1) and dtype int32
         Thresholds indexed by [table, (old + 1) // 2, field + z]; table t is used in sweep t
         (the last one for later sweeps).
     row_parity : ndarray of shape (rows,) and dtype int64
@@ -325,43 +325,43 @@ def glauber_checkerboard_bipartite(halves, states, up_limits, row_parity, row_ne
             for t in range(sweeps):
                 for c in range(2):
                     for b in range(n_sub):
-                        _block_any(halves, states, up_limits, row_parity, row_neighbours,
+                        _block_any(halves, states, flip_limits, row_parity, row_neighbours,
                                    block_rows, r, b, c, t, periodic, counts)
     else:
         # One lattice: the row blocks of each colour step in parallel.
         for t in range(sweeps):
             for c in range(2):
                 for task in prange(n_sub):
-                    _block_any(halves, states, up_limits, row_parity, row_neighbours,
+                    _block_any(halves, states, flip_limits, row_parity, row_neighbours,
                                block_rows, 0, task, c, t, periodic, counts)
     for task in range(n_rep * n_sub):
         flips[task // n_sub] += counts[task]
 
 
 @jit_inline
-def _block_any(halves, states, up_limits, row_parity, row_neighbours, block_rows, r, b, c, t,
+def _block_any(halves, states, flip_limits, row_parity, row_neighbours, block_rows, r, b, c, t,
                periodic, counts):
     """Update row block b of colour c of replica r with the variant for its coordination."""
     n_thr = row_neighbours.shape[1] + 3
     slot = r * (block_rows.shape[0] - 1) + b
     if n_thr == 3:
-        counts[slot] += _block_3(halves, states, up_limits, row_parity, row_neighbours,
+        counts[slot] += _block_3(halves, states, flip_limits, row_parity, row_neighbours,
                                  block_rows, r, b, c, t, periodic)
     elif n_thr == 5:
-        counts[slot] += _block_5(halves, states, up_limits, row_parity, row_neighbours,
+        counts[slot] += _block_5(halves, states, flip_limits, row_parity, row_neighbours,
                                  block_rows, r, b, c, t, periodic)
     else:
-        counts[slot] += _block_7(halves, states, up_limits, row_parity, row_neighbours,
+        counts[slot] += _block_7(halves, states, flip_limits, row_parity, row_neighbours,
                                  block_rows, r, b, c, t, periodic)
 
 
 @jit_parallel
-def glauber_checkerboard_triangular(spins, states, up_limits, dims, periodic, block_rows,
+def glauber_checkerboard_triangular(spins, states, flip_limits, dims, periodic, block_rows,
                                     sweeps, flips):
     """Advance triangular configurations by ``sweeps`` three-colour sweeps, in place.
 
     Colour c holds the sites with ``(x + y) % 3 == c``; a row of colour c has ``nx // 3``
-    sites. ``spins`` has shape (R, N) (flat, plain layout); ``up_limits`` is indexed by
+    sites. ``spins`` has shape (R, N) (flat, plain layout); ``flip_limits`` is indexed by
     [table, (old + 1) // 2, field + 6] as in the random-sequential kernel; the other
     parameters are those of :func:`glauber_checkerboard_bipartite`.
     """
@@ -373,7 +373,7 @@ def glauber_checkerboard_triangular(spins, states, up_limits, dims, periodic, bl
     n_blocks = (per_row + 2 * LANES - 1) // (2 * LANES)
     counts = np.zeros(n_rep * n_sub, dtype=np.int64)
     for t in range(sweeps):
-        table = up_limits[min(t, up_limits.shape[0] - 1)]
+        table = flip_limits[min(t, flip_limits.shape[0] - 1)]
         for c in range(3):
             for task in prange(n_rep * n_sub):
                 r = task // n_sub
@@ -391,7 +391,7 @@ def glauber_checkerboard_triangular(spins, states, up_limits, dims, periodic, bl
                         field = local_field(s, x, y, 0, nx, ny, 1, 2, periodic)
                         old = s[site]
                         w = np.int32(words[m] >> np.uint32(1))
-                        new = np.int8(1) if w <= table[(old + 1) >> 1, field + 6] else np.int8(-1)
+                        new = np.int8(-old) if w <= table[(old + 1) >> 1, field + 6] else old
                         changed += np.int64(new != old)
                         s[site] = new
                 counts[task] += changed

@@ -2,10 +2,10 @@
 
 One sweep is N attempts. Attempt k of a sweep consumes ``d + 1`` consecutive 32-bit words of
 the replica's stream (d = dimension): one per coordinate, x first, each mapped to
-``[0, n_axis)`` by multiply-shift, then the acceptance word ``w``. The new spin is +1 when
-``w >> 1 <= up_limits[t, (s + 1) // 2, field + z]`` and -1 otherwise, where ``s`` is the old
-spin and ``field`` the sum of the neighbour spins; the table holds ``floor(p * 2**31) - 1``
-for the probability ``p`` that the new spin is up (``coarsen.engine.up_probabilities``). Words are
+``[0, n_axis)`` by multiply-shift, then the acceptance word ``w``. The spin ``s`` flips when
+``w >> 1 <= flip_limits[t, (s + 1) // 2, field + z]`` and stays otherwise, where ``field``
+is the sum of the neighbour spins; the table holds ``floor(p * 2**31) - 1`` for the
+probability ``p`` that the spin flips (``coarsen.engine.flip_probabilities``). Words are
 drawn in blocks of 256 attempts; the words left over at the end of a sweep are discarded, so
 a run split into calls of any length consumes the same numbers.
 """
@@ -102,7 +102,7 @@ def _periodic_sweep_body(spins, state, limits, dims, kind, buffer, index):
                 field += spins[np.uint64(index[q, k])]
             w = np.int32(words[k * per + d] >> np.uint32(1))
             limit = lut[np.uint64(((old + 1) << 3) + field + z_coord)]
-            new = np.int8(1) if w <= limit else np.int8(-1)
+            new = np.int8(-old) if w <= limit else old
             flips += new != old
             spins[site] = new
         remaining -= count
@@ -145,7 +145,7 @@ def _sweep_body(spins, state, limits, dims, kind, periodic, buffer, xs, ys, zs):
             field = local_field(spins, x, y, z, nx, ny, nz, kind, periodic)
             w = np.int64(words[k * per + d] >> np.uint32(1))
             limit = flat_limits[np.uint64(((old + 1) >> 1) * n_field + field + z_coord)]
-            new = np.int8(1) if w <= limit else np.int8(-1)
+            new = np.int8(-old) if w <= limit else old
             flips += new != old
             spins[site] = new
         remaining -= count
@@ -157,7 +157,7 @@ _sweep_any = _make_sweep(-1)
 
 
 @jit_parallel
-def glauber_random_sequential(spins, states, up_limits, dims, kind, periodic, sweeps, flips):
+def glauber_random_sequential(spins, states, flip_limits, dims, kind, periodic, sweeps, flips):
     """Advance every replica by ``sweeps`` random-sequential Glauber sweeps, in place.
 
     Parameters
@@ -166,7 +166,7 @@ def glauber_random_sequential(spins, states, up_limits, dims, kind, periodic, sw
         Flat configurations, modified in place.
     states : ndarray of shape (R, 4 * LANES) and dtype uint64
         One stream per replica, advanced in place.
-    up_limits : ndarray of shape (n_tables, 2, 2 z + 1) and dtype int32
+    flip_limits : ndarray of shape (n_tables, 2, 2 z + 1) and dtype int32
         Integer thresholds; table ``t`` is used in sweep t (the last one for later sweeps).
     dims : ndarray of shape (3,) and dtype int64
         (nx, ny, nz), 1 for unused axes.
@@ -180,13 +180,13 @@ def glauber_random_sequential(spins, states, up_limits, dims, kind, periodic, sw
         Incremented by the number of spins that changed.
     """
     n_rep = spins.shape[0]
-    n_tables = up_limits.shape[0]
+    n_tables = flip_limits.shape[0]
     for r in prange(n_rep):
         buffer = np.empty(ATTEMPTS_PER_BLOCK * 4 // 2 + LANES, dtype=np.uint64)
         index = np.empty((7, ATTEMPTS_PER_BLOCK), dtype=np.int64)
         total = 0
         for t in range(sweeps):
-            table = up_limits[min(t, n_tables - 1)]
+            table = flip_limits[min(t, n_tables - 1)]
             if kind == SQUARE and periodic:
                 total += _sweep_square_periodic(spins[r], states[r], table, dims, kind, periodic,
                                                 buffer, index)

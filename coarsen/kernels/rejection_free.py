@@ -11,10 +11,10 @@ Moves and classes
 Glauber: the moves are the N sites. A site's class is ``2 (f + z) + (s + 1) / 2`` for spin s
 and neighbour sum f in -z..z (z the lattice's coordination; an open edge only narrows the
 range of f), so ``2 (2 z + 1)`` classes. Its rate per sweep is the probability that one
-random-sequential attempt at it changes the spin: ``(limit[0, f + z] + 1) / 2**31`` for s = -1
-and ``1 - (limit[1, f + z] + 1) / 2**31`` for s = +1, with the integer thresholds of the
-random-sequential kernel (``coarsen.engine.up_probabilities``), so both updates realise the
-same probabilities to the last bit.
+random-sequential attempt at it flips the spin, ``(limit[(s + 1) / 2, f + z] + 1) / 2**31``,
+with the integer thresholds of the random-sequential kernel
+(``coarsen.engine.flip_probabilities``), so both updates realise the same probabilities to
+the last bit.
 
 Kawasaki: the moves are the bond slots ``e = a * zf + j`` (site a, forward direction j of
 ``zf = z / 2``, partner ``b = a + forward[j]``); only slots joining unlike spins are in a
@@ -43,6 +43,11 @@ counts of one class and level-1 group are contiguous (a short scan), those of al
 one group are adjacent (a move changing class touches few cache lines), the higher counts
 are stored class by class; the word found is the cache line of codes that the event then
 updates, so the last step of the search costs no extra memory traffic (Glauber).
+The Glauber event loop (:func:`_glauber_sweep`) does this search inline, with branch-free
+scans of 16 counts at levels 2, 1 and 0 (the counts are padded for it) and unsigned indices,
+and keeps array-taking helpers with loops out of it: numba reference-counts their array
+arguments at every call. It finds the same member as :func:`_select`, so the random words
+and the results are those of the plain search.
 Within a call a site carries one int8 *code* ``2 (f + z) + (s + 1) / 2``, its spin and
 neighbour sum together (for Glauber, its class); the spins are written back at the end.
 A Kawasaki exchange rewrites the codes of a, b and their neighbours, then brings the class
@@ -110,13 +115,17 @@ def new_class_sets(n_classes, n_moves):
     ``counts0[g, c, i]`` (uint8) counts the members of class c among moves 64 w .. 64 w + 63,
     w = 16 g + i (the 16 word counts of one class and level-1 group are contiguous, those of
     all classes of one group adjacent); ``countsL[c, g]`` the members of class c among moves
-    ``g 2**b_L`` .. ``(g + 1) 2**b_L - 1`` (b_L = 10, 14, 18 for L = 1, 2, 3);
-    ``counts[c]`` all members of class c. Which moves they are is read from the class array
+    ``g 2**b_L`` .. ``(g + 1) 2**b_L - 1`` (b_L = 10, 14, 18 for L = 1, 2, 3; levels 1
+    and 2 padded with zero counts to a multiple of 16 groups); ``counts[c]`` all members of
+    class c. Which moves they are is read from the class array
     (one int8 per move, see :func:`padded_classes`).
     """
-    counts0 = np.zeros(((n_moves >> _LEVEL1_BITS) + 1, n_classes, 16), dtype=np.uint8)
-    counts1 = np.zeros((n_classes, (n_moves >> _LEVEL1_BITS) + 1), dtype=np.int32)
-    counts2 = np.zeros((n_classes, (n_moves >> _LEVEL2_BITS) + 1), dtype=np.int32)
+    groups1 = (n_moves >> _LEVEL1_BITS) + 1
+    groups2 = (n_moves >> _LEVEL2_BITS) + 1
+    counts0 = np.zeros((groups1, n_classes, 16), dtype=np.uint8)
+    # levels 1 and 2 padded with zeros to whole runs of 16 (the scans read 16 at a time)
+    counts1 = np.zeros((n_classes, ((groups1 + 15) >> 4) << 4), dtype=np.int32)
+    counts2 = np.zeros((n_classes, ((groups2 + 15) >> 4) << 4), dtype=np.int32)
     counts3 = np.zeros((n_classes, (n_moves >> _LEVEL3_BITS) + 1), dtype=np.int32)
     counts = np.zeros(n_classes, dtype=np.int64)
     return counts0, counts1, counts2, counts3, counts
@@ -167,6 +176,24 @@ def _delete(sets, move, c):
     counts2[c, move >> _LEVEL2_BITS] -= 1
     counts3[c, move >> _LEVEL3_BITS] -= 1
     counts[c] -= 1
+
+
+@jit_inline
+def _count(counts0, counts1, counts2, counts3, counts, move, c, d):
+    """Add ``d`` to the counts of class ``c`` that hold ``move``, at every level.
+
+    Straight-line code on the arrays themselves (no tuple, no branch) and unsigned indices
+    (no negative-index wrap-around): inlined into an event loop it adds no reference
+    counting there, which a branchy helper taking arrays does (numba 0.68 then increfs and
+    decrefs every array argument at each call, ~40 ns an event measured).
+    """
+    m = np.uint64(move)
+    cu = np.uint64(c)
+    counts0[m >> np.uint64(_LEVEL1_BITS), cu, (m >> np.uint64(_WORD_BITS)) & np.uint64(15)] += d
+    counts1[cu, m >> np.uint64(_LEVEL1_BITS)] += d
+    counts2[cu, m >> np.uint64(_LEVEL2_BITS)] += d
+    counts3[cu, m >> np.uint64(_LEVEL3_BITS)] += d
+    counts[cu] += d
 
 
 @jit_inline
@@ -390,57 +417,138 @@ def glauber_classes(codes, n_sites, n_classes):
 
 @jit_serial
 def _glauber_rates(limits, rates):
-    """Integer flip rates of the classes from one table of up-thresholds (2, 2 z + 1)."""
+    """Integer flip rates of the classes from one table of flip thresholds (2, 2 z + 1)."""
     for f in range(limits.shape[1]):
         rates[2 * f] = np.int64(limits[0, f]) + 1
-        rates[2 * f + 1] = RATE_ONE - (np.int64(limits[1, f]) + 1)
+        rates[2 * f + 1] = np.int64(limits[1, f]) + 1
 
 
 @jit_serial
-def _glauber_replica(spins, state, up_limits, forward, dims, periodic, sweeps, verify):
-    """Advance one replica; returns (flips, class-set mismatches found by ``verify``)."""
-    nx = dims[0]
-    ny = dims[1]
-    nz = dims[2]
+def _glauber_sweep(codes, words, counts0, counts1, counts2, counts3, counts, rates, state,
+                   buffer, forward, nx, ny, nz, periodic):
+    """The events of one sweep [t, t + 1) at the class rates ``rates``; returns the flips.
+
+    Written flat on purpose: the draws, the class choice and the search for the member are
+    in this body rather than in helpers that take arrays, and every hot index is unsigned.
+    Numba 0.68 reference-counts the array arguments of an inlined helper with loops or
+    branches at every call, and wraps negative signed indices; both together cost about a
+    quarter of the time of an event (measured at L = 128 on 1024**2 sites). The levels 2, 1
+    and 0 of the search scan 16 counts each without an early exit (no mispredicted loop
+    exit); levels 1 and 2 are padded for that (:func:`new_class_sets`). The member found is
+    the one :func:`_select` finds.
+    """
     z = 2 * forward.shape[0]
-    n_classes = up_limits.shape[1] * up_limits.shape[2]
+    one = np.uint64(1)
+    used = LANES
+    clock = 0.0
+    flips = 0
+    total = _total_rate(counts, rates)
+    while total > 0:
+        # an event takes two draws: the first at an even place of a block (LANES is even)
+        if used == LANES:
+            fill_draws(state, buffer, 1)
+            used = 0
+        u = buffer[np.uint64(used)]
+        clock += _waiting_time(u, np.float64(RATE_ONE), np.float64(total))
+        if clock >= 1.0:
+            break
+        v = buffer[np.uint64(used + 1)]
+        used += 2
+        # the class: cumulative integer rates, as _pick
+        target = np.int64(np.float64(v >> np.uint64(11)) * _UNIFORM * np.float64(total))
+        if target >= total:
+            target = total - 1
+        cu = np.uint64(0)
+        while True:
+            weight = counts[cu] * rates[cu]
+            if target < weight:
+                break
+            target -= weight
+            cu += one
+        c = np.int64(cu)
+        k = target // rates[cu]
+        # the member of rank k, as _select: level 3, then 16 counts at each lower level
+        j = np.uint64(0)
+        while k >= counts3[cu, j]:
+            k -= counts3[cu, j]
+            j += one
+        base = j << np.uint64(4)
+        running = np.int64(0)
+        below = np.int64(0)
+        i = np.uint64(0)
+        for step in range(16):
+            running += counts2[cu, base + np.uint64(step)]
+            if running <= k:
+                i += one
+                below = running
+        k -= below
+        base = (base + i) << np.uint64(4)
+        running = np.int64(0)
+        below = np.int64(0)
+        i = np.uint64(0)
+        for step in range(16):
+            running += counts1[cu, base + np.uint64(step)]
+            if running <= k:
+                i += one
+                below = running
+        k -= below
+        group = base + i
+        running = np.int64(0)
+        below = np.int64(0)
+        i = np.uint64(0)
+        for step in range(16):
+            running += np.int64(counts0[group, cu, np.uint64(step)])
+            if running <= k:
+                i += one
+                below = running
+        k -= below
+        w = (group << np.uint64(4)) + i
+        pattern = cu * _BYTE_ONES
+        first = w << np.uint64(3)
+        mask = np.uint64(0)
+        for b in range(8):
+            mask |= _equal_bytes(words[first + np.uint64(b)], pattern) << np.uint64(8 * b)
+        for _ in range(k):
+            mask &= mask - one
+        site = np.int64((w << np.uint64(_WORD_BITS)) + _trailing_zeros(mask))
+        # the flip, and the neighbours' codes by 4 s (their sums change by twice the new spin)
+        _count(counts0, counts1, counts2, counts3, counts, site, c, -1)
+        _count(counts0, counts1, counts2, counts3, counts, site, c ^ 1, 1)
+        codes[np.uint64(site)] = c ^ 1
+        total += rates[cu ^ one] - rates[cu]
+        delta = 4 * (2 * ((c ^ 1) & 1) - 1)
+        x, y, zc = _coordinates(site, nx, ny, nz)
+        for direction in range(z):
+            n = _neighbour(x, y, zc, direction, forward, nx, ny, nz, periodic)[0]
+            if n >= 0:
+                nu = np.uint64(n)
+                old = np.int64(codes[nu])
+                _count(counts0, counts1, counts2, counts3, counts, n, old, -1)
+                _count(counts0, counts1, counts2, counts3, counts, n, old + delta, 1)
+                codes[nu] = old + delta
+                total += rates[np.uint64(old + delta)] - rates[np.uint64(old)]
+        flips += 1
+    return flips
+
+
+@jit_serial
+def _glauber_replica(spins, state, flip_limits, forward, dims, periodic, sweeps, verify):
+    """Advance one replica; returns (flips, class-set mismatches found by ``verify``)."""
+    n_classes = flip_limits.shape[1] * flip_limits.shape[2]
     n_sites = spins.shape[0]
     codes = site_codes(spins, forward, dims, periodic)
     words = codes.view(np.uint64)
     sets = glauber_classes(codes, n_sites, n_classes)
-    counts = sets[4]
+    counts0, counts1, counts2, counts3, counts = sets
     rates = np.zeros(n_classes, dtype=np.int64)
     buffer = np.empty(LANES, dtype=np.uint64)
-    n_tables = up_limits.shape[0]
+    n_tables = flip_limits.shape[0]
     flips = 0
     mismatches = 0
     for t in range(sweeps):
-        _glauber_rates(up_limits[min(t, n_tables - 1)], rates)
-        used = LANES
-        clock = 0.0
-        total = _total_rate(counts, rates)
-        while total > 0:
-            u, used = _next_draw(state, buffer, used)
-            clock += _waiting_time(u, np.float64(RATE_ONE), np.float64(total))
-            if clock >= 1.0:
-                break
-            v, used = _next_draw(state, buffer, used)
-            c, rank = _pick(counts, rates, total, v)
-            site = _select(sets, words, c, rank)
-            _move(sets, site, c, c ^ 1)
-            codes[site] = c ^ 1
-            total += rates[c ^ 1] - rates[c]
-            # the neighbour sums change by twice the new spin: codes by 4 s
-            delta = 4 * (2 * ((c ^ 1) & 1) - 1)
-            x, y, zc = _coordinates(site, nx, ny, nz)
-            for k in range(z):
-                n = _neighbour(x, y, zc, k, forward, nx, ny, nz, periodic)[0]
-                if n >= 0:
-                    old = np.int64(codes[n])
-                    _move(sets, n, old, old + delta)
-                    codes[n] = old + delta
-                    total += rates[old + delta] - rates[old]
-            flips += 1
+        _glauber_rates(flip_limits[min(t, n_tables - 1)], rates)
+        flips += _glauber_sweep(codes, words, counts0, counts1, counts2, counts3, counts, rates,
+                                state, buffer, forward, dims[0], dims[1], dims[2], periodic)
         if verify:
             _write_spins(codes, spins)
             fresh = site_codes(spins, forward, dims, periodic)
@@ -452,7 +560,7 @@ def _glauber_replica(spins, state, up_limits, forward, dims, periodic, sweeps, v
 
 
 @jit_parallel
-def glauber_rejection_free(spins, states, up_limits, forward, dims, periodic, sweeps, flips,
+def glauber_rejection_free(spins, states, flip_limits, forward, dims, periodic, sweeps, flips,
                            verify, mismatches):
     """Advance every replica by ``sweeps`` sweeps of rejection-free Glauber dynamics, in place.
 
@@ -462,7 +570,7 @@ def glauber_rejection_free(spins, states, up_limits, forward, dims, periodic, sw
         Flat configurations, modified in place.
     states : ndarray of shape (R, 4 * LANES) and dtype uint64
         One stream per replica, advanced in place.
-    up_limits : ndarray of shape (n_tables, 2, 2 z + 1) and dtype int32
+    flip_limits : ndarray of shape (n_tables, 2, 2 z + 1) and dtype int32
         The thresholds of the random-sequential kernel; table t is used in sweep t (the last
         one for later sweeps).
     forward : ndarray of shape (z / 2, 3) and dtype int64
@@ -481,7 +589,7 @@ def glauber_rejection_free(spins, states, up_limits, forward, dims, periodic, sw
         Incremented by the number of differing arrays found by ``verify``.
     """
     for r in prange(spins.shape[0]):
-        f, m = _glauber_replica(spins[r], states[r], up_limits, forward, dims, periodic,
+        f, m = _glauber_replica(spins[r], states[r], flip_limits, forward, dims, periodic,
                                 sweeps, verify)
         flips[r] += f
         mismatches[r] += m

@@ -160,5 +160,10 @@ seed = 21
     slopes = effective_exponent(fit.data)
     logs = np.log(ds["length"].sel(estimator="corr_half").values)
     per_replica = np.diff(logs, axis=1) / np.diff(np.log(ds["time"].values))
-    assert np.allclose(slopes.exponent, per_replica.mean(axis=0))
-    assert np.allclose(slopes.error, per_replica.std(axis=0, ddof=1) / np.sqrt(6))
+    # a replica whose domain has nearly filled the lattice (|m| near 0.8 at t = 200 here) has
+    # C(r) above 1/2 at every r, so corr_half is undefined (NaN) there: the band is taken over
+    # the replicas with a finite slope, as effective_exponent documents
+    finite = np.isfinite(per_replica).sum(axis=0)
+    assert finite.min() >= 2
+    assert np.allclose(slopes.exponent, np.nanmean(per_replica, axis=0))
+    assert np.allclose(slopes.error, np.nanstd(per_replica, axis=0, ddof=1) / np.sqrt(finite))

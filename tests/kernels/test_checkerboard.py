@@ -9,7 +9,7 @@ along every axis, and the minimal sizes.
 import numpy as np
 import pytest
 
-from coarsen.engine import advance, make_streams, substreams_needed, up_probabilities
+from coarsen.engine import advance, flip_probabilities, make_streams, substreams_needed
 from coarsen.lattice import Lattice
 from tests import reference
 from tests.helpers import ACCEPTANCES, SCHEDULE, compare_with_twin, random_spins
@@ -103,7 +103,7 @@ def test_ground_state_of_antiferromagnet_is_stable_at_zero_temperature(acceptanc
 
 
 def _thresholds(lattice, T, J, h, acceptance):
-    p = up_probabilities(T, lattice.coordination, J, h, acceptance)
+    p = flip_probabilities(T, lattice.coordination, J, h, acceptance)
     return [[reference.threshold(v) for v in row] for row in p]
 
 

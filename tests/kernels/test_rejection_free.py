@@ -15,7 +15,7 @@ import numba
 import numpy as np
 import pytest
 
-from coarsen.engine import advance, exchange_probabilities, make_streams, up_probabilities
+from coarsen.engine import advance, exchange_probabilities, flip_probabilities, make_streams
 from coarsen.kernels import rejection_free as kernel
 from coarsen.lattice import Lattice
 from coarsen.rejection_free import _geometry, class_list_mismatches
@@ -50,8 +50,7 @@ def _glauber_moves(s, geometry, table):
     for i in range(geometry.n_sites):
         f = _field(s, i, geometry)
         c = 2 * (f + z) + (s[i] + 1) // 2
-        up = threshold(table[0 if s[i] < 0 else 1][f + z]) + 1
-        rates[c] = up if s[i] < 0 else RATE_ONE - up
+        rates[c] = threshold(table[0 if s[i] < 0 else 1][f + z]) + 1
         members.setdefault(c, []).append(i)
     return members, rates
 
@@ -84,7 +83,7 @@ def twin_advance(spins, streams, lattice, sweeps, temperature, rule, acceptance,
         stream = Stream(streams[r, 0])
         for _ in range(sweeps):
             if rule == "glauber":
-                table = up_probabilities(temperature, z, J, h, acceptance)
+                table = flip_probabilities(temperature, z, J, h, acceptance)
             else:
                 table = exchange_probabilities(temperature, z, J, acceptance)
             draws = _Draws(stream)

@@ -32,7 +32,7 @@ all-up state and are compared with the Boltzmann distribution restricted to its 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pytest
@@ -358,20 +358,46 @@ def _sample(case: Case):
 ])
 def test_boltzmann_distribution(case: Case):
     """Chi-squared tests of the sampled histograms (see the module docstring) and <E>/N
-    within 5 standard errors of the exact value; all keys are checked before failing."""
+    within 5 standard errors of the exact value; all keys are checked before failing.
+
+    A case whose only failures are chi-squared p-values at or below ``P_THRESHOLD`` is run
+    once more with an independent seed and four times the samples, and passes only if that
+    run passes (a two-stage confirmation; common practice, no source). With 116
+    chi-squared tests in the default tier, one stage alone would raise a false alarm in
+    about one full run in nine (1 - 0.999**116 = 0.11); a real bias large enough to give
+    p ~ 1e-3 gives a far smaller p with four times the samples, so the second stage keeps the power. Samples in
+    states of zero exact probability, a broken conservation law and an energy mean off by
+    5 standard errors fail at once.
+    """
+    failures, decisive = _check(case)
+    if failures and not decisive:
+        again = replace(case, seed=case.seed + 10_000, samples=4 * case.samples)
+        print(f"\n{case.id}: p <= {P_THRESHOLD:g}; confirming with {again.samples} samples, "
+              f"seed {again.seed}")
+        confirmed, _ = _check(again)
+        failures = ([f"first run: {f}" for f in failures] + [f"second run: {f}" for f in confirmed]
+                    if confirmed else [])
+    assert not failures, f"{case.id}:\n" + "\n".join(failures)
+
+
+def _check(case: Case) -> tuple[list[str], bool]:
+    """Run ``case``; return its failures and whether any is decisive (not a p-value)."""
     samples = _sample(case)
     classes, prob = _exact_classes(case)
     failures = []
+    decisive = False
     if case.n_up is not None:
         # Kawasaki conserves M exactly (REFERENCE.md Sect. 9)
         m0 = 2 * case.n_up - case.lattice.n_sites
         if not np.all(samples.magnetization == m0):
             failures.append(f"magnetization not conserved: {np.unique(samples.magnetization)}")
+            decisive = True
     print()
     for key in case.keys:
         result = boltzmann_check(samples, classes, prob, key, case.id, assert_pass=False)
         if result.unexpected:
             failures.append(f"[{key}] {result.unexpected} samples in zero-probability states")
+            decisive = True
         if not result.p_value > P_THRESHOLD:
             failures.append(f"[{key}] {result}")
     # mean energy per site
@@ -384,7 +410,8 @@ def test_boltzmann_distribution(case: Case):
     print(f"[mean] {case.id}: <E>/N = {est} vs exact {exact_u:.10f}: z = {z:+.2f}")
     if not abs(z) < 5:
         failures.append(f"<E>/N = {est} vs exact {exact_u:.10f}: z = {z:+.2f}")
-    assert not failures, f"{case.id}:\n" + "\n".join(failures)
+        decisive = True
+    return failures, decisive
 
 
 def test_chi_square_detects_a_wrong_temperature():
