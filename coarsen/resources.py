@@ -1,18 +1,21 @@
 """Memory of a run, estimated from the spec before anything is allocated.
 
 A run holds the spins of every replica (int8, one byte a site), the kept snapshots, the
-measurement grid and, per thread measuring side by side, one workspace of transforms and
-labels. :func:`run_memory_estimate` adds these up from the lattice, the replicas and the
-snapshots; :func:`check_run_memory` refuses a spec whose estimate exceeds the memory of this
-machine (physical memory, or a cgroup limit where one is set), so a run too large for memory
-fails at once with a message naming ``lattice.size`` instead of dying in an allocation, or
-hours later in a swap storm.
+measurement grid and, while it measures, per thread one workspace of labels and transforms.
+:func:`run_memory_estimate` adds these up from the lattice, the replicas and the snapshots;
+:func:`check_run_memory` refuses a spec whose estimate exceeds the memory of this machine
+(physical memory, or a cgroup limit where one is set), so a run too large for memory fails
+at once with a message naming ``lattice.size`` instead of dying in an allocation, or hours
+later in a swap storm.
 
-The bytes per site below were measured on the project's machine (NumPy allocations traced
-with :mod:`tracemalloc`, peaks with ``getrusage``) and rounded up; the estimate is meant to
-be an upper bound of the peak resident memory above the interpreter's own (about 180 MB with
-the kernels loaded). ``tests/validation/test_resources.py`` checks that bound on a 4096**2
-Glauber run.
+The bytes per site below were measured on the project's machine (peak resident memory per
+step of a 4096**2 Glauber run, from ``VmHWM`` reset before each step) and rounded up; the
+estimate is meant to be an upper bound of the peak resident memory above the interpreter's
+own (about 260 MB with the kernels loaded). :func:`peak_memory_bound` is the tighter bound
+of the hardening issue, 3x the spins plus the transform buffers of one replica, which a
+run of one replica keeps; ``tests/validation/test_resources.py`` checks both on a 4096**2
+Glauber run with measurements (measured: a peak 163 MB above the warmed-up interpreter's
+resident memory, 130 MB above the peak of a baseline process; the bound is 185 MB).
 """
 
 from __future__ import annotations
@@ -20,22 +23,55 @@ from __future__ import annotations
 import math
 import os
 
-__all__ = ["available_memory", "check_run_memory", "format_bytes", "run_memory_estimate"]
+__all__ = ["available_memory", "check_run_memory", "format_bytes", "peak_memory_bound",
+           "run_memory_estimate"]
 
-#: Bytes per site and replica: the spins (1) and the engine's per-call scratch (4).
-SPIN_BYTES = 5
+#: Bytes per site and replica: the spins (1) and the engine's check of their values (2, the
+#: temporaries of ``abs(spins) == 1`` at every call).
+SPIN_BYTES = 3
+#: Bytes per site while the initial state is drawn, one replica at a time (32-bit random
+#: words and the up/down flags: 6.7 measured).
+INITIAL_BYTES = 7
 #: Bytes per site and kept snapshot: the kept copy, its reordered copy in the dataset, and
 #: the copy the checkpoint/dataset writer makes.
 SNAPSHOT_BYTES = 3
-#: Bytes per site of the measurement grid: 4 kept (|k| and r bin indices), 12 at its peak
-#: while it is built.
-GRID_BYTES = 12
-#: Bytes per site of one measurement workspace (float32 field, half spectrum, correlation,
-#: domain labels, wall/bulk split); there is one per thread measuring side by side.
-WORKSPACE_BYTES = 32
+#: Bytes per site of the measurement grid: 2 kept (uint16 |k| and r bin numbers of the half
+#: grids), under 4 at its peak while it is built (int32 and 4 kept only for grids with more
+#: than 65534 shells, i.e. chains of more than 2**17 sites).
+GRID_BYTES = 4
+#: Bytes per site of one measurement workspace: the domain labelling's runs (13 bytes a run,
+#: at most one run a site; 6.5 a site for a random configuration), the complex64 half
+#: spectrum (4) and the per-chunk int8 and bool temporaries (3). There is one per thread
+#: measuring side by side; above 2**21 sites the labelling's and the transform's scratch are
+#: freed after each step, so they never add up (the sum is the bound for kept workspaces).
+WORKSPACE_BYTES = 20
 #: Sites measured together per chunk below which replicas are grouped
 #: (:func:`coarsen.observables.structure.replica_chunks`).
 _CHUNK_SITES = 1 << 16
+
+
+def peak_memory_bound(size, replicas: int = 1) -> int:
+    """The documented peak-memory bound of a run: 3x the spins plus one replica's transforms.
+
+    ``3 N R`` bytes (the int8 spins, a snapshot and a temporary of the same size) plus the
+    buffers of one single-precision real transform of one configuration: the float32 field
+    (``4 N``) and its complex64 half spectrum (``8 (N / n_x) (n_x // 2 + 1)``).
+
+    Parameters
+    ----------
+    size : sequence of int
+        Sites per axis (x first), as ``lattice.size``.
+    replicas : int, default: 1
+
+    Returns
+    -------
+    int
+        Bytes above the interpreter's own memory; a run of one replica with measurements
+        and one snapshot stays below it (``tests/validation/test_resources.py``).
+    """
+    n = math.prod(int(v) for v in size)
+    nx = int(size[0])
+    return 3 * n * int(replicas) + 4 * n + 8 * (n // nx) * (nx // 2 + 1)
 
 
 def run_memory_estimate(n_sites: int, replicas: int, snapshots: int = 0,
@@ -63,7 +99,7 @@ def run_memory_estimate(n_sites: int, replicas: int, snapshots: int = 0,
     chunk_sites = n_sites * min(per_chunk, replicas)
     workspaces = min(threads, chunks)
     return int(n_sites * (SPIN_BYTES * replicas + SNAPSHOT_BYTES * snapshots * replicas
-                          + GRID_BYTES)
+                          + GRID_BYTES + INITIAL_BYTES)
                + WORKSPACE_BYTES * chunk_sites * workspaces)
 
 

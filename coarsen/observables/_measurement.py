@@ -254,9 +254,7 @@ def measure(spins: np.ndarray, lattice: Lattice, grid: MeasurementGrid, *, tempe
         magnetization[part] = order_sum / n_present
         count_and_largest_into(np.ascontiguousarray(values), lattice, n_present, count[part],
                                largest[part], workspace, wall_bonds[part], bulk_bonds[part])
-        field = workspace.array("field", values.shape, grid._real)
-        np.copyto(field, values)
-        radial_into(field, grid, structure_factor[part], correlation[part], workspace)
+        radial_into(values, grid, structure_factor[part], correlation[part], workspace)
 
     chunks = replica_chunks(reps, lattice.n_sites)
     for_each(one_chunk, chunks, threads, lattice.n_sites * (chunks[0].stop - chunks[0].start),

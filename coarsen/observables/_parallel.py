@@ -19,6 +19,11 @@ __all__ = ["Workspace", "WorkspacePool", "check_threads", "for_each"]
 
 # Below this many sites per piece of work a thread costs more than it saves.
 _MIN_SITES_PER_THREAD = 1 << 14
+# Up to this many sites per piece a thread's workspace (at most ~20 bytes a site) is kept
+# for the next call; above it the scratch arrays are freed as soon as each step is done, so
+# a large lattice never holds the labelling's scratch and the transform's at once, nor
+# either between measurements.
+KEEP_SITES = 1 << 21
 
 
 def check_threads(threads) -> int:
@@ -44,13 +49,17 @@ class Workspace:
     one thread at a time (:class:`WorkspacePool`).
     """
 
-    def __init__(self):
+    def __init__(self, keep: bool = True):
         self._arrays = {}
+        self.keep = keep
 
     def array(self, name: str, shape, dtype) -> np.ndarray:
-        """An uninitialised array of this shape and dtype, the same one on every call."""
+        """An uninitialised array of this shape and dtype, the same one on every call (a
+        fresh one each time for a workspace that does not ``keep``)."""
         shape = tuple(int(n) for n in shape)
         dtype = np.dtype(dtype)
+        if not self.keep:
+            return np.empty(shape, dtype=dtype)
         found = self._arrays.get(name)
         if found is None or found.shape != shape or found.dtype != dtype:
             found = self._arrays[name] = np.empty(shape, dtype=dtype)
@@ -68,11 +77,17 @@ class WorkspacePool:
         self._free: list[Workspace] = []
         self._lock = threading.Lock()
 
-    def acquire(self) -> Workspace:
+    def acquire(self, sites: int = 0) -> Workspace:
+        """A workspace for pieces of ``sites`` sites: a kept one up to :data:`KEEP_SITES`,
+        else one that keeps nothing."""
+        if sites > KEEP_SITES:
+            return Workspace(keep=False)
         with self._lock:
             return self._free.pop() if self._free else Workspace()
 
     def release(self, workspace: Workspace) -> None:
+        if not workspace.keep:
+            return
         with self._lock:
             self._free.append(workspace)
 
@@ -81,7 +96,8 @@ def for_each(function, pieces, threads: int, sites_per_piece: int,
              workspaces: WorkspacePool | None = None) -> None:
     """Call ``function(piece, workspace)`` for every piece, on up to ``threads`` threads.
 
-    Each thread has its own :class:`Workspace` from ``workspaces`` (a fresh pool if None).
+    Each thread has its own :class:`Workspace` from ``workspaces`` (a fresh pool if None),
+    kept in the pool for the next call only for pieces of up to :data:`KEEP_SITES` sites.
     Pieces are taken in order by whichever thread is free; exceptions are raised in the
     caller. Small pieces (fewer than 16384 sites) all run on the calling thread.
     """
@@ -89,7 +105,7 @@ def for_each(function, pieces, threads: int, sites_per_piece: int,
     pool = WorkspacePool() if workspaces is None else workspaces
     workers = min(threads, len(pieces))
     if workers <= 1 or sites_per_piece < _MIN_SITES_PER_THREAD:
-        workspace = pool.acquire()
+        workspace = pool.acquire(sites_per_piece)
         try:
             for piece in pieces:
                 function(piece, workspace)
@@ -102,7 +118,7 @@ def for_each(function, pieces, threads: int, sites_per_piece: int,
     def call(piece):
         workspace = getattr(local, "workspace", None)
         if workspace is None:
-            workspace = local.workspace = pool.acquire()
+            workspace = local.workspace = pool.acquire(sites_per_piece)
             taken.append(workspace)
         function(piece, workspace)
 

@@ -16,7 +16,8 @@ Radial averages. With ``extent`` the length of the shortest periodic translation
 
 The grid keeps, for the transforms of :mod:`coarsen.observables.structure`, the shell number
 of every wavevector of the half spectrum and the bin number of every displacement in use
-(int32), with the rows and columns of the correlation grid that hold those displacements.
+(uint16, or int32 when there are more than 65534 bins), with the rows and columns of the
+correlation grid that hold those displacements.
 """
 
 from __future__ import annotations
@@ -69,6 +70,17 @@ def autocorrelation(values: np.ndarray, shape) -> np.ndarray:
     return sfft.irfftn(f.real**2 + f.imag**2, s=shape, axes=axes, workers=1)
 
 
+def _index_dtype(n_bins: int | None, scale: float, values_xyz):
+    """uint16 when every bin number fits (they are at most ``n_bins``, or at most
+    ``scale * |v|`` for a grid of |v| <= sqrt(sum of the largest squares) with a cross term
+    of at most that size), else int32: half the memory of the grid for lattices up to a few
+    ten thousand sites per axis."""
+    if n_bins is None:
+        largest = sum(float(np.max(np.abs(v))) ** 2 for v in values_xyz)
+        n_bins = math.ceil(scale * math.sqrt(2.0 * largest)) + 2
+    return np.uint16 if n_bins < np.iinfo(np.uint16).max else np.int32
+
+
 def _bin_numbers(lattice: Lattice, values_xyz, periods, cross: float, scale: float,
                  n_bins: int | None, weight):
     """Bin number ``floor(scale |v| + 1/2)`` of every point of a coordinate grid, and the
@@ -81,7 +93,7 @@ def _bin_numbers(lattice: Lattice, values_xyz, periods, cross: float, scale: flo
     d = lattice.dimension
     shape = tuple(len(v) for v in values_xyz[::-1])
     per_row = math.prod(shape[1:])
-    index = np.empty(math.prod(shape), dtype=np.int32)
+    index = np.empty(math.prod(shape), dtype=_index_dtype(n_bins, scale, values_xyz))
     sums = np.zeros(1)
     step = max(1, _SLAB_ELEMENTS // per_row)
     for start in range(0, shape[0], step):
@@ -108,7 +120,7 @@ def _compact(index: np.ndarray, sums: np.ndarray, n_raw: int):
     """Renumber the non-empty bins 0 .. n - 1 in place (others become n); (kept, their sums)."""
     sums = np.concatenate((sums, np.zeros(max(0, n_raw - len(sums)))))[:n_raw]
     kept = np.flatnonzero(sums > 0)
-    lut = np.full(max(n_raw, int(index.max()) + 1) + 1, len(kept), dtype=np.int32)
+    lut = np.full(max(n_raw, int(index.max()) + 1) + 1, len(kept), dtype=index.dtype)
     lut[kept] = np.arange(len(kept))
     for start in range(0, len(index), _SLAB_ELEMENTS):
         part = index[start: start + _SLAB_ELEMENTS]
@@ -149,12 +161,13 @@ class MeasurementGrid:
 
     Notes
     -----
-    The grid holds one bin number (4 bytes, int32) per wavevector of the half spectrum and
-    per displacement in use (half the displacements on a torus, by the symmetry
-    C(d) = C(-d)): about 4 bytes per site periodic and 6 open, e.g. 67 MB for a 4096**2 torus.
-    Each thread that has measured on the grid keeps its scratch arrays there for the next
-    call: 8 bytes per site (single precision) and, for the domain labelling, up to 21 bytes
-    per site of which only a few per run of equal spins along x are ever written.
+    The grid holds one bin number (2 bytes, uint16, while the bins fit; else 4, int32) per
+    wavevector of the half spectrum and per displacement in use (half the displacements on
+    a torus, by the symmetry C(d) = C(-d)): about 2 bytes per site periodic and 3 open,
+    e.g. 34 MB for a 4096**2 torus. Each thread that has measured on a grid of up to 2**21
+    sites keeps its scratch arrays there for the next call: the complex half spectrum
+    (4 bytes per site in single precision) and, for the domain labelling, 13 bytes per run
+    of equal spins along x. Larger lattices free them after each step.
     """
 
     lattice: Lattice

@@ -107,7 +107,9 @@ def moment_length(k, structure_factor, k_max: float = math.pi) -> np.ndarray:
         raise ValueError(f"structure_factor: {s.shape[1]} shells but {len(k)} wavevectors k")
     use = (k > 0) & (k <= k_max + 1e-12)
     weight = s[:, use].sum(axis=1)
-    first = s[:, use] @ k[use]
+    # a row-wise NumPy sum, not a matrix product: BLAS rounds a product of R rows differently
+    # from that of one row, which made a replica's value depend on the replicas beside it
+    first = (s[:, use] * k[use]).sum(axis=1)
     out = np.full(s.shape[0], np.nan)
     ok = first > 0
     out[ok] = 2.0 * np.pi * weight[ok] / first[ok]

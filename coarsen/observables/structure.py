@@ -22,7 +22,9 @@ measurement, while memory and time halve; ``"double"`` uses float64/complex128. 
 (``workers=1``, whatever ``scipy.fft.set_workers`` says); with ``threads > 1`` replicas are
 transformed side by side. Replicas are transformed one at a time above 65536 sites, so
 results are bitwise independent of thread settings and of how many replicas are measured
-together, and a 4096**2 configuration needs a few hundred MB of work space per thread.
+together. On a torus the transforms along x go a block of rows at a time, so the only
+full-size array is the complex half spectrum: a 4096**2 configuration needs 67 MB of work
+space per thread (single precision).
 """
 
 from __future__ import annotations
@@ -46,6 +48,9 @@ __all__ = [
 
 # Replicas transformed together: enough for small lattices to amortise the call overhead.
 _CHUNK_SITES = 1 << 16
+# Values per block of rows of the transforms along x on a torus (a float copy of the rows
+# and their half spectrum, a few MB), so that no full-size float field is ever made.
+_BLOCK_ELEMENTS = 1 << 17
 
 
 # --------------------------------------------------------------------------------------------
@@ -148,20 +153,35 @@ def radial_into(values: np.ndarray, grid: MeasurementGrid, s_out, c_out, workspa
     """Shell and bin averages of a chunk of (masked) fields, written into ``s_out`` and
     ``c_out`` (arrays of shape (chunk, n_k) and (chunk, n_r), or None for not wanted).
 
-    ``values`` (float32 or float64 per the grid's precision) may be overwritten. The real
-    transform along x allocates the half spectrum; every other step works in place or in the
-    thread's ``workspace``: the transforms along the other axes in place (``overwrite_x``), the
-    power and its shell sums in place (kernel), and the inverse along x into a kept array.
+    ``values`` is any real array (int8 spins, or a float field) and is left unchanged. On a
+    torus the only full-size array is the complex half spectrum (``workspace``): the real
+    transform along x fills it a block of rows at a time from float copies of those rows,
+    the transforms along the other axes work in place (``overwrite_x``), the power and its
+    shell sums in place (kernel), and the inverse along x is again taken a block of rows at
+    a time, each block's bin sums added in row order. Transforms of a block of rows are
+    bitwise those of the whole array (row by row), and the sums run in the same order, so
+    the results are the same bits as with whole-array transforms.
     """
     lat = grid.lattice
     d = lat.dimension
     reps = values.shape[0]
-    real = grid._real
+    real, complex_ = PRECISIONS[grid.precision]
     nx = lat.size[0]
     half = nx // 2 + 1
     n_k, n_r = len(grid.k), len(grid.r)
     leading = tuple(range(-d, -1))  # the array axes other than x
-    f = sfft.rfft(values, axis=-1, workers=1, overwrite_x=grid._padded is None)
+    if grid._padded is not None:  # open edges: whole-array transforms of a float field
+        f = sfft.rfft(values.astype(real), axis=-1, workers=1, overwrite_x=True)
+    else:
+        rows = values.reshape(reps, -1, nx)
+        n_rows = rows.shape[1]
+        step = _rows_per_block(reps, nx, n_rows)
+        f = workspace.array("spectrum", (reps, *lat.shape[:-1], half), complex_)
+        f_rows = f.reshape(reps, n_rows, half)
+        for a in range(0, n_rows, step):
+            b = min(a + step, n_rows)
+            f_rows[:, a:b] = sfft.rfft(rows[:, a:b].astype(real), axis=-1, workers=1,
+                                       overwrite_x=True)
     if leading:
         f = sfft.fftn(f, axes=leading, workers=1, overwrite_x=True)
     pairs = f.view(real).reshape(reps, -1, 2 * half)  # (real, imaginary) per column
@@ -174,24 +194,38 @@ def radial_into(values: np.ndarray, grid: MeasurementGrid, s_out, c_out, workspa
     if c_out is None:
         return
     # C(d) sums = inverse transform of |F|^2 (Wiener-Khinchin)
+    sums = np.zeros((reps, n_r + 1))
     if grid._padded is None:
         if leading:
             f = sfft.ifftn(f, axes=leading, workers=1, overwrite_x=True)
-        sums_grid = workspace.array("correlation", (reps, *lat.shape), real)
-        np.fft.irfft(f, n=nx, axis=-1, out=sums_grid)
+        f_rows = f.reshape(reps, n_rows, half)
+        block = workspace.array("correlation rows", (reps, step, nx), real)
+        starts = np.arange(step, dtype=np.int64) * nx  # the window holds every row
+        for a in range(0, n_rows, step):
+            b = min(a + step, n_rows)
+            part = block[:, : b - a]
+            np.fft.irfft(f_rows[:, a:b], n=nx, axis=-1, out=part)
+            for i in range(reps):
+                gathered_bin_sums(part[i].reshape(-1), starts[: b - a], grid._r_columns,
+                                  grid._r_weight, grid._r_index[a * half: b * half], sums[i])
     else:  # open edges: the zero-padded transform
         del f, pairs
         axes = tuple(range(-d, 0))
-        f = sfft.rfftn(values, s=grid._padded, axes=axes, workers=1)
+        f = sfft.rfftn(values.astype(real), s=grid._padded, axes=axes, workers=1)
         _power_in_place(f)
-        sums_grid = sfft.irfftn(f, s=grid._padded, axes=axes, workers=1, overwrite_x=True)
-    del f
-    flat = sums_grid.reshape(reps, -1)
+        flat = sfft.irfftn(f, s=grid._padded, axes=axes, workers=1,
+                           overwrite_x=True).reshape(reps, -1)
+        del f
+        for i in range(reps):
+            gathered_bin_sums(flat[i], grid._r_rows, grid._r_columns, grid._r_weight,
+                              grid._r_index, sums[i])
     for i in range(reps):
-        sums = np.zeros(n_r + 1)
-        gathered_bin_sums(flat[i], grid._r_rows, grid._r_columns, grid._r_weight,
-                          grid._r_index, sums)
-        c_out[i] = sums[:n_r] / grid.pair_counts
+        c_out[i] = sums[i, :n_r] / grid.pair_counts
+
+
+def _rows_per_block(reps: int, nx: int, n_rows: int) -> int:
+    """Rows transformed together along x: about _BLOCK_ELEMENTS values per block."""
+    return max(1, min(n_rows, _BLOCK_ELEMENTS // (reps * nx)))
 
 
 def _power_in_place(f: np.ndarray) -> None:
