@@ -208,8 +208,29 @@ def load_snapshots(path, *, boundary: str = "open", times=None, kind: str | None
                         source_file=str(path))
 
 
+def _kept_configurations(snapshots: LabSnapshots, inverse, counts, keep):
+    """(configurations, indices of the kept times) for the dataset's ``snapshot``.
+
+    Shots of one time are the replicas; a replica missing at a time and a site outside the
+    mask are stored as 0 (neither phase).
+    """
+    n_times = len(counts)
+    if keep is None or keep >= n_times:
+        chosen = np.arange(n_times)
+    else:
+        chosen = np.unique(np.round(np.linspace(0, n_times - 1, keep)).astype(int))
+    out = np.zeros((len(chosen), int(counts.max()), *snapshots.spins.shape[1:]), dtype=np.int8)
+    for slot, index in enumerate(chosen):
+        shots = snapshots.spins[inverse == index]
+        out[slot, : len(shots)] = shots
+    if snapshots.mask is not None:
+        out[..., ~snapshots.mask] = 0
+    return out, chosen
+
+
 def measure_snapshots(snapshots: LabSnapshots, *, order: str = "ferro",
-                      J: float | None = None) -> xr.Dataset:
+                      J: float | None = None, keep_snapshots: int | None = None,
+                      ) -> xr.Dataset:
     """Measure lab snapshots with the observables of a run, one group per time.
 
     The shots of each time are the replicas; where times have different numbers of shots,
@@ -218,6 +239,12 @@ def measure_snapshots(snapshots: LabSnapshots, *, order: str = "ferro",
     ground state of the antiferromagnet), so the energy measures broken bonds of the order
     being studied. The ``wall`` length uses that ground-state energy as the reference (lab
     data has no temperature), and ``temperature`` and ``field`` are NaN.
+
+    The configurations are kept as the run datasets keep them (``snapshot``, dims
+    ``snapshot_time, replica, x[, y[, z]]``, int8), with 0 at sites outside the mask and for
+    shots missing at a time, so ``coarsen plot --kind snapshots`` draws lab data too.
+    ``keep_snapshots`` limits them to that many times, evenly chosen (0 keeps none;
+    default: every time).
 
     Returns
     -------
@@ -254,5 +281,17 @@ def measure_snapshots(snapshots: LabSnapshots, *, order: str = "ferro",
         "masked_sites": int(0 if snapshots.mask is None else (~snapshots.mask).sum()),
     }
     extra = {"shots": (("time",), counts.astype(np.int64), "1", "shots measured at each time")}
-    return build_dataset(arrays, times=group_times, k=grid.k, r=grid.r, attrs=attrs,
-                         extra_variables=extra)
+    if keep_snapshots is not None and (isinstance(keep_snapshots, bool) or
+                                       not isinstance(keep_snapshots, (int, np.integer)) or
+                                       keep_snapshots < 0):
+        raise ValueError(f"keep_snapshots: {keep_snapshots!r} must be a whole number >= 0")
+    kept, kept_times = None, None
+    if keep_snapshots != 0:
+        kept, chosen = _kept_configurations(snapshots, inverse, counts, keep_snapshots)
+        kept_times = group_times[chosen]
+    ds = build_dataset(arrays, times=group_times, k=grid.k, r=grid.r, attrs=attrs,
+                       snapshots=kept, snapshot_times=kept_times, extra_variables=extra)
+    if "snapshot" in ds:
+        ds["snapshot"].attrs["long_name"] = ("measured spin configurations (+1/-1; 0 where "
+                                             "not measured)")
+    return ds

@@ -18,9 +18,9 @@ NOTEBOOKS = Path(__file__).resolve().parent.parent / "notebooks"
 PATHS = sorted(NOTEBOOKS.glob("*.ipynb"))
 
 
-def test_there_are_three_notebooks():
+def test_there_are_four_notebooks():
     assert [p.stem for p in PATHS] == ["01_nonconserved_baseline", "02_fitting_lab_data",
-                                       "03_scaling_collapse"]
+                                       "03_scaling_collapse", "04_ramp_and_hold"]
 
 
 @pytest.mark.parametrize("path", PATHS, ids=[p.stem for p in PATHS])

@@ -233,3 +233,77 @@ def test_palette_stays_distinguishable_under_colour_vision_deficiency():
         distances = [np.linalg.norm(colours[i] - colours[j])
                      for i in range(len(colours)) for j in range(i + 1, len(colours))]
         assert min(distances) > 10, name
+
+
+def _masked_lab_file(tmp_path):
+    """A small synthetic stack: 3 times x 2 shots of 12x10 sites, a masked 3x3 block."""
+    rng = np.random.default_rng(5)
+    spins = rng.choice(np.array([0, 1], dtype=np.int8), size=(6, 12, 10))
+    mask = np.ones((12, 10), dtype=bool)
+    mask[2:5, 4:7] = False
+    path = tmp_path / "lab.npz"
+    np.savez(path, spins=spins, times=np.repeat([10.0, 20.0, 40.0], 2), mask=mask)
+    return path, spins, mask
+
+
+def test_measured_lab_data_keeps_its_configurations_with_missing_sites_as_zero(tmp_path):
+    path, spins, mask = _masked_lab_file(tmp_path)
+    ds = coarsen.measure_snapshots(coarsen.load_snapshots(path))
+    snap = ds["snapshot"]
+    assert snap.dims == ("snapshot_time", "replica", "x", "y") and snap.dtype == np.int8
+    assert list(ds["snapshot_time"].values) == [10.0, 20.0, 40.0]
+    expected = np.where(spins == 1, 1, -1).reshape(3, 2, 12, 10)
+    assert np.array_equal(snap.values[..., mask], expected[..., mask])
+    assert np.all(snap.values[..., ~mask] == 0)
+    limited = coarsen.measure_snapshots(coarsen.load_snapshots(path), keep_snapshots=2)
+    assert list(limited["snapshot_time"].values) == [10.0, 40.0]
+    assert "snapshot" not in coarsen.measure_snapshots(coarsen.load_snapshots(path),
+                                                       keep_snapshots=0)
+    with pytest.raises(ValueError, match="keep_snapshots"):
+        coarsen.measure_snapshots(coarsen.load_snapshots(path), keep_snapshots=-1)
+
+
+def test_snapshots_figure_of_a_measured_lab_file_greys_the_missing_sites(tmp_path, capsys):
+    from coarsen.plots.style import PHASE_COLOURS
+
+    path, _, mask = _masked_lab_file(tmp_path)
+    out = tmp_path / "lab.nc"
+    assert main(["measure", str(path), "-o", str(out), "--quiet"]) == 0
+    figure = make_figure("snapshots", coarsen.open_dataset(out))
+    picture = figure.axes[0].images[0]
+    colours = picture.cmap(picture.norm(np.asarray(picture.get_array())))
+    grey = np.array(matplotlib_colour(PHASE_COLOURS["missing"]))
+    shown = np.all(np.isclose(colours[..., :3], grey[:3]), axis=-1)
+    assert np.array_equal(shown, ~mask.T)  # image rows are y, columns x
+    assert figure.axes[0].get_ylabel() == "shot 0"
+    assert main(["plot", str(out), "-o", str(tmp_path / "s.png"), "--kind",
+                 "snapshots"]) == 0
+    none = tmp_path / "none.nc"
+    assert main(["measure", str(path), "-o", str(none), "--quiet", "--snapshots", "0"]) == 0
+    capsys.readouterr()
+    assert main(["plot", str(none), "-o", str(tmp_path / "n.png"), "--kind",
+                 "snapshots"]) == 2
+    assert "snapshot" in capsys.readouterr().err
+    bad = tmp_path / "bad.nc"
+    assert main(["measure", str(path), "-o", str(bad), "--quiet", "--snapshots", "-1"]) == 2
+    err = capsys.readouterr().err
+    assert "--snapshots" in err and err.count("\n") == 1 and not bad.exists()
+
+
+def matplotlib_colour(name):
+    from matplotlib.colors import to_rgba
+
+    return to_rgba(name)
+
+
+def test_a_power_laws_own_effective_exponent_is_its_n_at_every_time(fit):
+    from coarsen.plots.growth import model_effective_exponent
+
+    curve = model_effective_exponent(fit, [5.0, 50.0, 500.0])
+    ds = fit.to_dataset()
+    names = [str(v) for v in ds["parameter_power"].values]
+    n = ds["posterior_power"].values[:, names.index("n")]
+    # d ln(A t^n) / d ln t = n exactly, so the band is n's own central 95 % interval (the
+    # curve thins the draws to at most 2000, which moves the median by well under 0.1 sd)
+    assert np.allclose(curve["median"], np.median(n), rtol=0, atol=0.1 * np.std(n))
+    assert np.allclose(curve["low"][0], curve["low"]) and curve["low"][0] < np.median(n)

@@ -25,10 +25,11 @@ def staggered(spins: np.ndarray) -> np.ndarray:
     return np.where(parity == 0, spins, -spins).astype(spins.dtype)
 
 
-def plot_snapshots(run, *, replicas: int = 2, title=None):
+def plot_snapshots(run, *, replicas: int = 2, max_columns: int = 5, title=None):
     """A grid of kept configurations: one column per kept time, one row per replica.
 
-    Two colours: the up phase dark, the down phase light. With ``order = "neel"`` the
+    Two colours: the up phase dark, the down phase light; sites stored as 0 (not measured,
+    in a lab dataset with a mask) mid grey. With ``order = "neel"`` the
     staggered field is drawn (so the two checkerboard orders show as the two phases). Of a
     3-d lattice the ``z = 0`` plane is drawn; a chain is drawn as rows of replicas. For a ramp
     scan the rows are the ramp durations (first replica).
@@ -39,6 +40,8 @@ def plot_snapshots(run, *, replicas: int = 2, title=None):
         A run dataset with ``snapshot``.
     replicas : int, default: 2
         Rows (replicas) to draw, at most.
+    max_columns : int, default: 5
+        Kept times to draw, at most (evenly chosen, first and last included).
     title : str, optional
 
     Returns
@@ -60,7 +63,8 @@ def plot_snapshots(run, *, replicas: int = 2, title=None):
         row_labels = [f"ramp {v:g} sweeps" for v in run["ramp_time"].values]
     else:
         snap = snap.isel(replica=slice(0, max(1, int(replicas)))).rename(replica="row")
-        row_labels = [f"replica {int(v)}" for v in run["replica"].values[:snap.sizes["row"]]]
+        word = "shot" if run.attrs.get("rule") == "lab" else "replica"
+        row_labels = [f"{word} {int(v)}" for v in run["replica"].values[:snap.sizes["row"]]]
     site_dims = [d for d in ("x", "y") if d in snap.dims]
     snap = snap.transpose("row", "snapshot_time", *site_dims)
     values = snap.values
@@ -68,8 +72,14 @@ def plot_snapshots(run, *, replicas: int = 2, title=None):
         values = staggered(values) if len(site_dims) == 2 else \
             np.where(np.arange(values.shape[-1]) % 2 == 0, values, -values)
     times = run["snapshot_time"].values
+    if values.shape[1] > max_columns:  # a lab dataset keeps every time: draw a few
+        pick = np.unique(np.round(np.linspace(0, values.shape[1] - 1,
+                                              max_columns)).astype(int))
+        values, times = values[:, pick], times[pick]
     rows, columns = values.shape[0], values.shape[1]
-    cmap = ListedColormap([PHASE_COLOURS["down"], PHASE_COLOURS["up"]])
+    # -1, 0 (a site that was not measured, in lab data) and +1
+    cmap = ListedColormap([PHASE_COLOURS["down"], PHASE_COLOURS["missing"], PHASE_COLOURS["up"]])
+    missing = bool((values == 0).any())
     with style():
         width = min(DOUBLE_WIDTH, max(COLUMN_WIDTH, 1.35 * columns))
         figure, axes = new_figure(width, width / columns * rows + 0.35, nrows=rows,
@@ -82,24 +92,31 @@ def plot_snapshots(run, *, replicas: int = 2, title=None):
                     picture = picture[np.newaxis, :]
                 else:
                     picture = picture.T  # rows of the image are y, columns x
-                ax.imshow(picture > 0, cmap=cmap, vmin=0, vmax=1, origin="lower",
+                ax.imshow(np.sign(picture).astype(np.int8) + 1, cmap=cmap, vmin=0, vmax=2,
+                          origin="lower",
                           interpolation="nearest", aspect="equal" if values.ndim == 4 else "auto")
                 ax.set_xticks([])
                 ax.set_yticks([])
                 for spine in ax.spines.values():
                     spine.set_linewidth(0.5)
                 if i == 0:
-                    ax.set_title(f"t = {times[j]:g} sweeps", fontsize=7)
+                    ax.set_title(f"t = {times[j]:g} sweep{'' if times[j] == 1 else 's'}",
+                                 fontsize=7)
                 if j == 0:
                     ax.set_ylabel(row_labels[i], fontsize=7)
         what = "staggered field" if neel else "spin"
-        figure.legend(handles=[Patch(facecolor=PHASE_COLOURS["up"], edgecolor=INK, lw=0.4,
-                                     label=f"{what} +1"),
-                               Patch(facecolor=PHASE_COLOURS["down"], edgecolor=INK, lw=0.4,
-                                     label=f"{what} -1")],
-                      loc="outside lower center", ncols=2, fontsize=7)
-        figure.suptitle(title or f"{run.attrs.get('lattice', '')}, "
-                                 f"{run.attrs.get('rule', '')}", fontsize=8)
+        handles = [Patch(facecolor=PHASE_COLOURS["up"], edgecolor=INK, lw=0.4,
+                         label=f"{what} +1"),
+                   Patch(facecolor=PHASE_COLOURS["down"], edgecolor=INK, lw=0.4,
+                         label=f"{what} -1")]
+        if missing:
+            handles.append(Patch(facecolor=PHASE_COLOURS["missing"], edgecolor=INK, lw=0.4,
+                                 label="not measured"))
+        figure.legend(handles=handles, loc="outside lower center", ncols=len(handles),
+                      fontsize=7)
+        lattice = run.attrs.get("lattice", "")
+        figure.suptitle(f"{title}, {lattice}" if title and lattice else
+                        title or f"{lattice}, {run.attrs.get('rule', '')}", fontsize=8)
     return figure
 
 
@@ -161,7 +178,9 @@ def plot_seeded(run, *, title=None):
         bottom.set_ylabel("interface position (lattice spacings)")
         bottom.set_xlabel("time $t$ (MC sweeps)")
         bottom.set_ylim(bottom=0)
-        bottom.legend(loc="upper right", fontsize=6.5, handlelength=1.6)
+        # lower left: the interface of a shrinking or moving domain starts high, and the
+        # lower left corner stays clear of it
+        bottom.legend(loc="lower left", fontsize=6.5, handlelength=1.6)
         if title:
             top.set_title(title)
     return figure

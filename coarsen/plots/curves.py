@@ -60,6 +60,8 @@ def _porod_line(ax, x, y, dimension: int):
 def plot_structure(run, *, times=None, title=None):
     """S(k, t) on log-log axes, one curve per time, with the Porod slope.
 
+    Shells up to |k| = pi are drawn (beyond it only the zone's corners are left).
+
     Parameters
     ----------
     run : xarray.Dataset
@@ -91,7 +93,9 @@ def plot_structure(run, *, times=None, title=None):
         for i in index:
             s = run["structure_factor"].isel(time=i).values
             e = run["structure_factor_sem"].isel(time=i).values
-            ok = (k > 0) & np.isfinite(s) & (s > 0)
+            # shells beyond |k| = pi hold only the corners of the Brillouin zone (few modes,
+            # not a radial average): they made a spurious spike and drop at the right edge
+            ok = (k > 0) & (k <= np.pi * (1 + 1e-9)) & np.isfinite(s) & (s > 0)
             colour = cmap(norm(all_times[i]))
             ax.plot(k[ok], s[ok], "-", color=colour, lw=1.0)
             low = np.clip(s - e, s * 1e-3, None)
@@ -237,6 +241,10 @@ def _posterior_draws(ds):
                      "-o or a collapse from coarsen collapse -o without --quick)")
 
 
+#: Short symbols for the panel titles (the axis labels carry the units).
+_PARAMETER_SYMBOLS = {"n": "$n$", "ln A": r"$\ln A$", "L0": "$L_0$", "t0": "$t_0$",
+                      "sigma_extra": r"$\sigma_\mathrm{extra}$", "a": "$a$", "b": "$b$"}
+
 _PARAMETER_LABELS = {"n": "$n$", "ln A": r"$\ln A$", "L0": "$L_0$ (lattice spacings)",
                      "t0": "$t_0$ (MC sweeps)", "sigma_extra": r"$\sigma_\mathrm{extra}$",
                      "a": "$a$", "b": "$b$"}
@@ -260,6 +268,13 @@ def plot_posterior(source, *, bins: int = 40, title=None):
     ds = _as_dataset(source, "posterior")
     names, draws = _posterior_draws(ds)
     k = len(names)
+    # axis ranges from the central 99.8 % of the draws, so a few stragglers of the chain do
+    # not squeeze the bulk of the posterior into a corner
+    limits = []
+    for i in range(k):
+        low, high = np.quantile(draws[:, i], [0.001, 0.999])
+        pad = 0.08 * (high - low) if high > low else 0.5 * max(abs(low), 1.0)
+        limits.append((low - pad, high + pad))
     with style():
         size = max(COLUMN_WIDTH, 1.25 * k)
         figure, axes = new_figure(size, size, nrows=k, ncols=k, squeeze=False)
@@ -271,34 +286,41 @@ def plot_posterior(source, *, bins: int = 40, title=None):
                     continue
                 if i == j:
                     values = draws[:, i]
-                    ax.hist(values, bins=bins, color=LINE_COLOURS[3], histtype="stepfilled",
+                    ax.hist(values, bins=bins, range=limits[i], color=LINE_COLOURS[3],
+                            histtype="stepfilled",
                             edgecolor=LINE_COLOURS[0], lw=0.7)
                     low, high = _hdi(values, 0.95)
                     median = float(np.median(values))
                     for v, dash in ((low, ":"), (median, "-"), (high, ":")):
                         ax.axvline(v, color=INK, ls=dash, lw=0.8)
                     ax.set_yticks([])
-                    ax.set_title(f"{_PARAMETER_LABELS.get(names[i], names[i])} = "
-                                 f"{median:.4g} [{low:.4g}, {high:.4g}]", fontsize=6.5)
+                    ax.set_xlim(*limits[i])
+                    ax.set_title(f"{_PARAMETER_SYMBOLS.get(names[i], names[i])} = "
+                                 f"{median:.3g} [{low:.3g}, {high:.3g}]", fontsize=6.5)
                     if names[i] == "n":
-                        # 1/2 labelled right of its line, 1/3 left of its line, at two
-                        # heights, so that the labels never overlap when the lines are close
-                        for exponent, text, dx, dy, align in ((0.5, "1/2", 2, -2, "left"),
-                                                              (1.0 / 3.0, "1/3", -2, -10,
-                                                               "right")):
-                            if values.min() <= exponent <= values.max():
+                        # the classical exponents as dashed lines, labelled in a white box at
+                        # the bottom (1/2 right of its line, 1/3 left of it), where they
+                        # neither hide the histogram's peak nor overlap each other
+                        for exponent, text, dx, align in ((0.5, "1/2", 2, "left"),
+                                                          (1.0 / 3.0, "1/3", -2, "right")):
+                            if limits[i][0] <= exponent <= limits[i][1]:
                                 ax.axvline(exponent, color=LINE_COLOURS[2], ls="--", lw=0.8)
-                                ax.annotate(text, (exponent, 1.0), xycoords=("data",
-                                            "axes fraction"), xytext=(dx, dy), ha=align,
-                                            textcoords="offset points", va="top", fontsize=6,
-                                            color=LINE_COLOURS[2])
+                                ax.annotate(text, (exponent, 0.0), xycoords=("data",
+                                            "axes fraction"), xytext=(dx, 2), ha=align,
+                                            textcoords="offset points", va="bottom",
+                                            fontsize=6, color=LINE_COLOURS[2],
+                                            bbox=dict(boxstyle="square,pad=0.1", fc="white",
+                                                      ec="none", alpha=0.85))
                 else:
-                    h, xe, ye = np.histogram2d(draws[:, j], draws[:, i], bins=bins // 2)
+                    h, xe, ye = np.histogram2d(draws[:, j], draws[:, i], bins=bins // 2,
+                                              range=[limits[j], limits[i]])
                     levels = sorted(set(_density_levels(h)))
                     centres_x, centres_y = 0.5 * (xe[1:] + xe[:-1]), 0.5 * (ye[1:] + ye[:-1])
                     ax.plot(draws[::max(1, len(draws) // 800), j],
                             draws[::max(1, len(draws) // 800), i], ".", ms=0.8,
                             color=LINE_COLOURS[3], alpha=0.6, rasterized=True)
+                    ax.set_xlim(*limits[j])
+                    ax.set_ylim(*limits[i])
                     if len(levels) >= 1 and h.max() > levels[0]:
                         ax.contourf(centres_x, centres_y, h.T, levels=levels + [h.max()],
                                     colors=[LINE_COLOURS[0]], alpha=0.35)

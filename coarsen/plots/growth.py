@@ -9,7 +9,7 @@ import numpy as np
 from coarsen.plots.style import (BAND_COLOUR, COLUMN_WIDTH, INK, LINE_COLOURS, MARKERS,
                                  REFERENCE_COLOUR, new_figure, plain_log_labels, style)
 
-__all__ = ["fit_band", "plot_exponent", "plot_growth"]
+__all__ = ["fit_band", "model_effective_exponent", "plot_exponent", "plot_growth"]
 
 #: The classical exponents drawn as references: Allen-Cahn (non-conserved) and
 #: Lifshitz-Slyozov (conserved); see :data:`coarsen.fit.growth.LAWS`.
@@ -74,6 +74,41 @@ def fit_band(fit, time=None, *, probability: float = 0.95) -> dict:
     tail = 50.0 * (1.0 - probability)
     low, median, high = np.nanpercentile(length, [tail, 50.0, 100.0 - tail], axis=0)
     return {"time": t[0], "median": median, "low": low, "high": high, "model": model}
+
+
+def model_effective_exponent(fit, time, *, probability: float = 0.95) -> dict:
+    """The fitted law's own n_eff(t) = d ln L / d ln t: median and central band.
+
+    A pure power has n_eff = n at all times; L0 + A t^n has n A t^n / (L0 + A t^n), and
+    A (t + t0)^n has n t / (t + t0), so only their late-time limit is the fitted n.
+
+    Returns
+    -------
+    dict with ``time``, ``median``, ``low``, ``high``
+    """
+    ds = _as_fit_dataset(fit)
+    model = ds.attrs["model"]
+    draws = ds[f"posterior_{model}"].values
+    names = [str(v) for v in ds[f"parameter_{model}"].values]
+    if draws.shape[0] > _MAX_DRAWS:
+        draws = draws[np.linspace(0, draws.shape[0] - 1, _MAX_DRAWS).astype(int)]
+    summary = json.loads(ds.attrs["summary"])
+    values = {name: draws[:, i] for i, name in enumerate(names)}
+    for name, entry in summary["parameters"].items():
+        values.setdefault(name, np.full(draws.shape[0], float(entry["median"])))
+    t = np.asarray(time, dtype=float)[np.newaxis]
+    n = values["n"][:, np.newaxis]
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        if model == "offset":
+            grown = values["A"][:, np.newaxis] * t ** n
+            slope = n * grown / (values["L0"][:, np.newaxis] + grown)
+        elif model == "shifted":
+            slope = n * t / (t + values["t0"][:, np.newaxis])
+        else:
+            slope = np.broadcast_to(n, (n.shape[0], t.shape[1]))
+    tail = 50.0 * (1.0 - probability)
+    low, median, high = np.nanpercentile(slope, [tail, 50.0, 100.0 - tail], axis=0)
+    return {"time": t[0], "median": median, "low": low, "high": high}
 
 
 def _replica_mean(values):
@@ -209,6 +244,7 @@ def plot_exponent(source, *, estimator: str = "corr_half", title=None):
         effective = _effective_from_run(source, estimator)
         time, value, error, label = effective.time, effective.exponent, effective.error, \
             estimator
+    label = _ESTIMATOR_LABELS.get(label, label)
     with style():
         figure, ax = new_figure(COLUMN_WIDTH, 0.85 * COLUMN_WIDTH)
         ok = np.isfinite(value) & (time > 0)
@@ -227,9 +263,24 @@ def plot_exponent(source, *, estimator: str = "corr_half", title=None):
         if fit is not None:
             s = json.loads(fit.attrs["summary"])["exponent"]
             tmin, tmax = float(fit.attrs["tmin"]), float(fit.attrs["tmax"])
-            ax.fill_between([tmin, tmax], *s["hdi95"], color=BAND_COLOUR, alpha=0.4, lw=0,
-                            label=f"fitted n, 95% HDI [{s['hdi95'][0]:.3f}, "
-                                  f"{s['hdi95'][1]:.3f}]")
+            model = fit.attrs["model"]
+            if model == "power":
+                ax.fill_between([tmin, tmax], *s["hdi95"], color=BAND_COLOUR, alpha=0.4,
+                                lw=0, label=f"fitted n, 95% HDI [{s['hdi95'][0]:.3f}, "
+                                            f"{s['hdi95'][1]:.3f}]")
+            else:
+                # the asymptotic n of L0 + A t^n or A (t + t0)^n is not n_eff in the window:
+                # draw the fitted law's own n_eff(t), and its n as a bar at the right edge
+                curve = model_effective_exponent(fit, np.geomspace(tmin, tmax, 60))
+                ax.fill_between(curve["time"], curve["low"], curve["high"], color=BAND_COLOUR,
+                                alpha=0.4, lw=0, label=f"$n_\\mathrm{{eff}}$ of the {model} "
+                                                       f"fit, 95%")
+                ax.errorbar([tmax], [s["median"]], yerr=[[s["median"] - s["hdi95"][0]],
+                                                         [s["hdi95"][1] - s["median"]]],
+                            fmt="D", color=LINE_COLOURS[2], ms=3.5, elinewidth=1.0,
+                            capsize=2.5, zorder=5,
+                            label=f"fitted asymptotic n = {s['median']:.3f} "
+                                  f"[{s['hdi95'][0]:.3f}, {s['hdi95'][1]:.3f}]")
         finite = value[ok]
         low = min(0.0, np.nanmin(finite - 1.96 * err[ok])) if finite.size else 0.0
         high = max(0.75, np.nanmax(finite + 1.96 * err[ok])) if finite.size else 1.0

@@ -85,16 +85,23 @@ def plot_protocol(run, *, estimator: str = "corr_half", title=None):
                     ax.axvline(crossing, color=colour, ls="--", lw=0.7)
         if np.isfinite(tc):
             top.axhline(tc, color=REFERENCE_COLOUR, ls=":", lw=0.9)
-            top.annotate("$T_c$", (1.0, tc), xycoords=("axes fraction", "data"), xytext=(2, 0),
-                         textcoords="offset points", va="center", fontsize=7,
-                         color=REFERENCE_COLOUR)
+            top.annotate("$T_c$", (1.0, tc), xycoords=("axes fraction", "data"),
+                         xytext=(-3, 1.5), textcoords="offset points", ha="right",
+                         va="bottom", fontsize=7, color=REFERENCE_COLOUR)
         top.set_ylabel("temperature $T$ ($J/k_B$)")
+        if np.isfinite(tc) and tc > 0:
+            right = top.secondary_yaxis("right", functions=(lambda v: v / tc,
+                                                            lambda v: v * tc))
+            right.set_ylabel("$T / T_c$")
         if field_varies:
             axes[1].plot(t_fine, field_values, "-", color=LINE_COLOURS[2])
             axes[1].set_ylabel("field $h$ ($J$)")
         bottom.set_yscale("log")
         plain_log_labels(bottom.yaxis)
-        bottom.set_ylabel(f"$L$ ({estimator.replace('_', ' ')}, lattice spacings)")
+        from coarsen.plots.growth import _ESTIMATOR_LABELS
+
+        bottom.set_ylabel(f"$L$ ({_ESTIMATOR_LABELS.get(estimator, estimator)}; lattice "
+                          f"spacings)")
         bottom.set_xlabel("time $t$ (MC sweeps)")
         bottom.set_xlim(0, float(time.max()) * 1.02)
         if scan or (schedules and labels[0]):
