@@ -15,6 +15,14 @@ fits ``Q = A tau^p`` to them with the growth-law machinery (:func:`coarsen.fit.g
 fit_model`: Gaussian on ``ln Q`` with each duration's standard error, emcee, HDIs), the
 durations being independent runs.
 
+The family collapse
+------------------
+:func:`crossing_family` turns a scan into one curve per ramp time, the quantity against the
+time since the crossing, ``t - t_cross(tau)``. Freeze-out scaling says those curves collapse
+as ``Q(t; tau) = tau^a F((t - t_cross) / tau^b)`` with ``a`` the exponent above and
+``b = z nu / (1 + z nu)`` (the freeze-out time ``t_hat ~ tau^b``), which is the ``family``
+form of :func:`coarsen.fit.fit_collapse` on a linear time axis.
+
 Reading at a time that is not a measurement time
 ------------------------------------------------
 Each replica's value is interpolated linearly in ``ln t`` between the two measurement times
@@ -31,8 +39,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["KibbleZurekFit", "FreezeOut", "QUANTITIES", "MOMENTS", "fit_kibble_zurek",
-           "freeze_out_values", "kibble_zurek_exponents"]
+__all__ = ["KibbleZurekFit", "FreezeOut", "QUANTITIES", "MOMENTS", "crossing_family",
+           "fit_kibble_zurek", "freeze_out_values", "kibble_zurek_exponents"]
 
 #: What can be read: ``susceptibility`` is N <m^2> (N sites, m the order parameter per site),
 #: ``length`` a length estimator of the dataset.
@@ -42,12 +50,14 @@ MOMENTS = ("crossing", "end")
 
 
 def kibble_zurek_exponents(gamma: float = 7 / 4, nu: float = 1.0, z: float = 2.1665) -> dict:
-    """The freeze-out exponents of tau: ``nu/(1+z nu)`` (length), ``gamma/(1+z nu)`` (N <m^2>).
+    """The freeze-out exponents of tau: ``nu/(1+z nu)`` (length), ``gamma/(1+z nu)`` (N <m^2>)
+    and ``z nu/(1+z nu)`` (``time``: the freeze-out time, the family collapse's ``b``).
 
     Defaults: the 2D Ising exponents gamma = 7/4, nu = 1 (exact, Onsager) and z = 2.1665
     (Nightingale & Blote, Phys. Rev. Lett. 76, 4548 (1996), recalled from memory).
     """
-    return {"length": nu / (1 + z * nu), "susceptibility": gamma / (1 + z * nu)}
+    return {"length": nu / (1 + z * nu), "susceptibility": gamma / (1 + z * nu),
+            "time": z * nu / (1 + z * nu)}
 
 
 @dataclass(frozen=True)
@@ -250,3 +260,62 @@ def fit_kibble_zurek(ds, *, quantity: str = "susceptibility", moment: str = "cro
                           amplitude=fit.parameter_summary("A"),
                           converged=bool(fit.posterior.converged), fit=fit,
                           prediction=float(prediction[key]))
+
+
+def crossing_family(ds, *, quantity: str = "susceptibility", estimator: str | None = "corr_half",
+                    window: tuple[float, float] | None = None, time_exponent: float | None = None):
+    """One curve per ramp time: the quantity against the time since the crossing of Tc.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A ramp-scan dataset whose ramps cross Tc.
+    quantity : {"susceptibility", "length"}, default: "susceptibility"
+        N <m^2>, or the length of ``estimator``.
+    estimator : str, default: "corr_half"
+        For ``quantity = "length"``.
+    window : (float, float), optional
+        Keep the times with ``low <= (t - t_cross) / tau^b <= high`` only, ``b`` being
+        ``time_exponent`` (default: the 2D Ising freeze-out value of
+        :func:`kibble_zurek_exponents`). Default: every measured time after ``t = 0``.
+    time_exponent : float, optional
+        ``b`` of the window.
+
+    Returns
+    -------
+    coarsen.fit.collapse_inputs.CurveFamily
+        Labels the ramp times, x the time since the crossing, y the replica mean and its
+        standard error (points where fewer than two replicas have a value are left out).
+
+    Raises
+    ------
+    ValueError
+        When the dataset is not a ramp scan, a ramp does not cross Tc, a name is unknown or a
+        curve keeps fewer than two points.
+    """
+    from coarsen.dataset import replica_mean_and_error
+    from coarsen.fit.collapse_inputs import family_from_curves
+
+    if quantity not in QUANTITIES:
+        raise ValueError(f"quantity: {quantity!r} is not one of {', '.join(QUANTITIES)}")
+    if "ramp_time" not in ds.dims:
+        raise ValueError("dataset: no ramp_time dimension; run a spec whose "
+                         "temperature.ramp.duration lists several durations")
+    b = kibble_zurek_exponents()["time"] if time_exponent is None else float(time_exponent)
+    values = _replica_values(ds, quantity, estimator if quantity == "length" else None)
+    crossing = _moments(ds, "crossing")
+    times = ds["time"].values.astype(np.float64)
+    curves = []
+    for index, duration in enumerate(ds["ramp_time"].values.astype(np.float64)):
+        mean, error = replica_mean_and_error(values[index])
+        since = times - crossing[index]
+        keep = (times > 0) & np.isfinite(error) & (error > 0)
+        if window is not None:
+            scaled = since / duration ** b
+            keep &= (scaled >= window[0]) & (scaled <= window[1])
+        if keep.sum() < 2:
+            raise ValueError(f"measure.times: the ramp of duration {duration:g} has "
+                             f"{int(keep.sum())} usable time(s) in the window; a curve needs two")
+        curves.append((duration, since[keep], mean[keep], error[keep]))
+    return family_from_curves(curves, parameter_name="ramp_time", x_name="time since Tc",
+                              source=f"{quantity} of a ramp scan")
