@@ -121,6 +121,25 @@ def test_growth_draws_every_estimator_the_band_and_both_reference_slopes(sources
     assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
 
 
+def test_growth_keeps_each_estimators_style_when_only_some_are_drawn(sources):
+    from coarsen.plots.growth import plot_growth
+
+    run, _ = sources["growth"]
+
+    def styles(figure):
+        # the estimators are drawn as error bars: one container per estimator
+        return {bars.get_label(): (bars.lines[0].get_color(), bars.lines[0].get_marker(),
+                                   bars.lines[0].get_markerfacecolor())
+                for bars in figure.axes[0].containers}
+
+    every = styles(plot_growth(run))
+    some = styles(plot_growth(run, estimators=("corr_half", "wall")))
+    assert set(some) == {"C(r) = 1/2", "wall density"}
+    assert all(some[name] == every[name] for name in some)
+    with pytest.raises(ValueError, match="estimator: 'bogus'"):
+        plot_growth(run, estimators=("bogus",))
+
+
 def test_fit_band_brackets_its_median_and_follows_the_power_law(fit):
     from coarsen.plots.growth import fit_band
 

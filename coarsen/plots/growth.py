@@ -164,12 +164,18 @@ def plot_growth(run=None, fit=None, *, estimators=None, title=None):
             # a length beyond the system's largest side says only that the estimator has
             # saturated (the wall length diverges as the last wall vanishes): not drawn
             size = float(np.max(run.attrs.get("size", np.inf)))
-            for i, name in enumerate(names):
+            every = [str(e) for e in run["estimator"].values]
+            unknown = [name for name in names if name not in every]
+            if unknown:
+                raise ValueError(f"estimator: {unknown[0]!r} is not one of {', '.join(every)}")
+            for name in names:
+                i = every.index(name)  # one style per estimator, whichever are drawn
                 time, mean, error = _lengths(run, name)
                 ok = np.isfinite(mean) & (mean > 0) & (time > 0) & (mean <= size)
                 if not ok.any():
                     continue
-                ax.errorbar(time[ok], mean[ok], yerr=np.nan_to_num(error[ok]), fmt=MARKERS[i % 6],
+                ax.errorbar(time[ok], mean[ok], yerr=np.nan_to_num(error[ok]),
+                            fmt=MARKERS[i % 6],
                             color=LINE_COLOURS[i % 6], ms=3.0, lw=0.8, elinewidth=0.7,
                             mfc="white" if i % 2 else LINE_COLOURS[i % 6],
                             label=_ESTIMATOR_LABELS.get(name, name), zorder=3)
