@@ -129,7 +129,7 @@ def _linear_decay(t, area):
     coefficients = np.array([np.polyfit(x, a[window], 2) for a in area])  # c, b, a
     rate = coefficients[:, 1] / span
     rate_change = 2 * coefficients[:, 0] / span  # d(dA/dt) across the window
-    return _mean_and_error(rate), _mean_and_error(rate_change), (tw[0], tw[-1])
+    return _mean_and_error(rate), _mean_and_error(rate_change), (float(tw[0]), float(tw[-1]))
 
 
 def _lifetimes(t, area):
