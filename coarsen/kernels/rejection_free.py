@@ -43,11 +43,11 @@ counts of one class and level-1 group are contiguous (a short scan), those of al
 one group are adjacent (a move changing class touches few cache lines), the higher counts
 are stored class by class; the word found is the cache line of codes that the event then
 updates, so the last step of the search costs no extra memory traffic (Glauber).
-The Glauber event loop (:func:`_glauber_sweep`) does this search inline, with branch-free
-scans of 16 counts at levels 2, 1 and 0 (the counts are padded for it) and unsigned indices,
-and keeps array-taking helpers with loops out of it: numba reference-counts their array
-arguments at every call. It finds the same member as :func:`_select`, so the random words
-and the results are those of the plain search.
+The event loops (:func:`_glauber_sweep`, :func:`_kawasaki_sweep`) do this search inline,
+with branch-free scans of 16 counts at levels 2, 1 and 0 (the counts are padded for it) and
+unsigned indices, and keep array-taking helpers with loops out of them: numba
+reference-counts their array arguments at every call. They find the same member as
+:func:`_select`, so the random words and the results are those of the plain search.
 Within a call a site carries one int8 *code* ``2 (f + z) + (s + 1) / 2``, its spin and
 neighbour sum together (for Glauber, its class); the spins are written back at the end.
 A Kawasaki exchange rewrites the codes of a, b and their neighbours, then brings the class
@@ -367,32 +367,6 @@ def _write_spins(codes, spins):
 
 
 @jit_inline
-def _next_draw(state, buffer, used):
-    """The next 64-bit draw and the new count of used draws of ``buffer``."""
-    if used == LANES:
-        fill_draws(state, buffer, 1)
-        used = 0
-    return buffer[used], used + 1
-
-
-@jit_inline
-def _pick(counts, rates, total, draw):
-    """(class, rank within it) of the event that the uniform ``draw`` selects."""
-    target = np.int64(np.float64(draw >> np.uint64(11)) * _UNIFORM * np.float64(total))
-    if target >= total:
-        target = total - 1
-    c = 0
-    below = np.int64(0)
-    while True:
-        weight = counts[c] * rates[c]
-        if target < below + weight:
-            break
-        below += weight
-        c += 1
-    return c, (target - below) // rates[c]
-
-
-@jit_inline
 def _total_rate(counts, rates):
     total = np.int64(0)
     for c in range(counts.shape[0]):
@@ -454,7 +428,8 @@ def _glauber_sweep(codes, words, counts0, counts1, counts2, counts3, counts, rat
             break
         v = buffer[np.uint64(used + 1)]
         used += 2
-        # the class: cumulative integer rates, as _pick
+        # the class: the first whose running sum of count x rate exceeds the target,
+        # the target being the draw scaled to the integer total rate
         target = np.int64(np.float64(v >> np.uint64(11)) * _UNIFORM * np.float64(total))
         if target >= total:
             target = total - 1
@@ -645,44 +620,168 @@ def _kawasaki_rates(limits, rates):
         rates[c] = np.int64(limits[c]) + 1
 
 
-@jit_inline
-def _update_bonds(codes, slot_classes, sets, rates, p, x, y, zc, forward, dims, periodic):
-    """Bring the classes of the z bonds of site p (at x, y, zc) up to date with the codes;
-    returns the change of the total rate."""
+@jit_serial
+def _kawasaki_sweep(codes, slot_classes, words, counts0, counts1, counts2, counts3, counts,
+                    rates, state, buffer, forward, nx, ny, nz, periodic, scale):
+    """The events of one sweep [t, t + 1) at the class rates ``rates``; returns the exchanges.
+
+    Written flat like :func:`_glauber_sweep`, for the same reason (numba reference-counts
+    the array arguments of an inlined helper with loops or branches at every call): the
+    draws, the class choice, the search for the member (the one :func:`_select` finds) and
+    the updates of the bond classes are in this body, and every hot index is unsigned.
+    ``scale`` is the rate units per sweep, ``(z / 2) 2**31``.
+    """
     zf = forward.shape[0]
     z = 2 * zf
-    change = np.int64(0)
-    for k in range(z):
-        q = _neighbour(x, y, zc, k, forward, dims[0], dims[1], dims[2], periodic)[0]
-        if q < 0:
-            continue
-        if k < zf:
-            slot = p * zf + k
-            new = _bond_class(codes[p], codes[q], z)
-        else:
-            slot = q * zf + (k - zf)
-            new = _bond_class(codes[q], codes[p], z)
-        old = np.int64(slot_classes[slot])
-        if new != old:
-            _move(sets, slot, old, new)
-            slot_classes[slot] = new
-            change += (rates[new] if new >= 0 else 0) - (rates[old] if old >= 0 else 0)
-    return change
+    zfu = np.uint64(zf)
+    one = np.uint64(1)
+    used = LANES
+    clock = 0.0
+    moves = 0
+    total = _total_rate(counts, rates)
+    while total > 0:
+        # an event takes two draws: the first at an even place of a block (LANES is even)
+        if used == LANES:
+            fill_draws(state, buffer, 1)
+            used = 0
+        u = buffer[np.uint64(used)]
+        clock += _waiting_time(u, scale, np.float64(total))
+        if clock >= 1.0:
+            break
+        v = buffer[np.uint64(used + 1)]
+        used += 2
+        # the class: the first whose running sum of count x rate exceeds the target,
+        # the target being the draw scaled to the integer total rate
+        target = np.int64(np.float64(v >> np.uint64(11)) * _UNIFORM * np.float64(total))
+        if target >= total:
+            target = total - 1
+        cu = np.uint64(0)
+        while True:
+            weight = counts[cu] * rates[cu]
+            if target < weight:
+                break
+            target -= weight
+            cu += one
+        k = target // rates[cu]
+        # the member of rank k, as _select: level 3, then 16 counts at each lower level
+        j = np.uint64(0)
+        while k >= counts3[cu, j]:
+            k -= counts3[cu, j]
+            j += one
+        base = j << np.uint64(4)
+        running = np.int64(0)
+        below = np.int64(0)
+        i = np.uint64(0)
+        for step in range(16):
+            running += counts2[cu, base + np.uint64(step)]
+            if running <= k:
+                i += one
+                below = running
+        k -= below
+        base = (base + i) << np.uint64(4)
+        running = np.int64(0)
+        below = np.int64(0)
+        i = np.uint64(0)
+        for step in range(16):
+            running += counts1[cu, base + np.uint64(step)]
+            if running <= k:
+                i += one
+                below = running
+        k -= below
+        group = base + i
+        running = np.int64(0)
+        below = np.int64(0)
+        i = np.uint64(0)
+        for step in range(16):
+            running += np.int64(counts0[group, cu, np.uint64(step)])
+            if running <= k:
+                i += one
+                below = running
+        k -= below
+        w = (group << np.uint64(4)) + i
+        pattern = cu * _BYTE_ONES
+        first = w << np.uint64(3)
+        mask = np.uint64(0)
+        for byte in range(8):
+            mask |= _equal_bytes(words[first + np.uint64(byte)], pattern) << np.uint64(8 * byte)
+        for _ in range(k):
+            mask &= mask - one
+        slot = (w << np.uint64(_WORD_BITS)) + _trailing_zeros(mask)
+        # the bond: site a and its neighbour b in forward direction j_ab
+        au = slot // zfu
+        j_ab = np.int64(slot - au * zfu)
+        a = np.int64(au)
+        xa, ya, za = _coordinates(a, nx, ny, nz)
+        b, xb, yb, zb = _neighbour(xa, ya, za, j_ab, forward, nx, ny, nz, periodic)
+        bu = np.uint64(b)
+        # the exchange: spins of a and b swap, neighbour sums change by -+ 2 s_a
+        delta = 4 * (2 * np.int64(codes[au] & 1) - 1)
+        codes[au] ^= 1
+        codes[bu] ^= 1
+        for direction in range(z):
+            n = _neighbour(xa, ya, za, direction, forward, nx, ny, nz, periodic)[0]
+            if n >= 0:
+                codes[np.uint64(n)] -= delta
+            n = _neighbour(xb, yb, zb, direction, forward, nx, ny, nz, periodic)[0]
+            if n >= 0:
+                codes[np.uint64(n)] += delta
+        # the bonds of every site whose code changed: all those of a (site 0) and b (1),
+        # then those of the other neighbours of a (2 .. z + 1) and of b (z + 2 .. 2 z + 1)
+        # but the bond back to a or b, done; a bond seen twice is found up to date (the
+        # order does not matter: every bond ends in its class, the total is an integer sum)
+        for site in range(2 * z + 2):
+            back = -1
+            if site == 0:
+                p, x, y, zc = a, xa, ya, za
+            elif site == 1:
+                p, x, y, zc = b, xb, yb, zb
+            else:
+                kn = site - 2 if site < z + 2 else site - z - 2
+                if kn == (j_ab if site < z + 2 else j_ab + zf):  # b, or a: done
+                    continue
+                back = kn + zf if kn < zf else kn - zf
+                if site < z + 2:
+                    p, x, y, zc = _neighbour(xa, ya, za, kn, forward, nx, ny, nz, periodic)
+                else:
+                    p, x, y, zc = _neighbour(xb, yb, zb, kn, forward, nx, ny, nz, periodic)
+            if p < 0:
+                continue
+            pu = np.uint64(p)
+            for direction in range(z):
+                if direction == back:
+                    continue
+                q = _neighbour(x, y, zc, direction, forward, nx, ny, nz, periodic)[0]
+                if q < 0:
+                    continue
+                qu = np.uint64(q)
+                if direction < zf:
+                    bond = pu * zfu + np.uint64(direction)
+                    new = _bond_class(codes[pu], codes[qu], z)
+                else:
+                    bond = qu * zfu + np.uint64(direction - zf)
+                    new = _bond_class(codes[qu], codes[pu], z)
+                old = np.int64(slot_classes[bond])
+                if new != old:
+                    if old >= 0:
+                        _count(counts0, counts1, counts2, counts3, counts, bond, old, -1)
+                        total -= rates[np.uint64(old)]
+                    if new >= 0:
+                        _count(counts0, counts1, counts2, counts3, counts, bond, new, 1)
+                        total += rates[np.uint64(new)]
+                    slot_classes[bond] = new
+        moves += 1
+    return moves
 
 
 @jit_serial
 def _kawasaki_replica(spins, state, exchange_limits, forward, dims, periodic, sweeps, verify):
     """Advance one replica; returns (exchanges, class-set mismatches found by ``verify``)."""
-    nx = dims[0]
-    ny = dims[1]
-    nz = dims[2]
-    zf = forward.shape[0]
-    z = 2 * zf
+    z = 2 * forward.shape[0]
     n_classes = exchange_limits.shape[1]
     codes = site_codes(spins, forward, dims, periodic)
     slot_classes, sets = kawasaki_classes(codes, forward, dims, periodic, n_classes)
     words = slot_classes.view(np.uint64)
-    counts = sets[4]
+    counts0, counts1, counts2, counts3, counts = sets
     rates = np.zeros(n_classes, dtype=np.int64)
     buffer = np.empty(LANES, dtype=np.uint64)
     n_tables = exchange_limits.shape[0]
@@ -692,50 +791,9 @@ def _kawasaki_replica(spins, state, exchange_limits, forward, dims, periodic, sw
     mismatches = 0
     for t in range(sweeps):
         _kawasaki_rates(exchange_limits[min(t, n_tables - 1)], rates)
-        used = LANES
-        clock = 0.0
-        total = _total_rate(counts, rates)
-        while total > 0:
-            u, used = _next_draw(state, buffer, used)
-            clock += _waiting_time(u, scale, np.float64(total))
-            if clock >= 1.0:
-                break
-            v, used = _next_draw(state, buffer, used)
-            c, rank = _pick(counts, rates, total, v)
-            slot = _select(sets, words, c, rank)
-            a = slot // zf
-            j = slot - a * zf
-            xa, ya, za = _coordinates(a, nx, ny, nz)
-            b, xb, yb, zb = _neighbour(xa, ya, za, j, forward, nx, ny, nz, periodic)
-            # the exchange: spins of a and b swap, neighbour sums change by -+ 2 s_a
-            delta = 4 * (2 * np.int64(codes[a] & 1) - 1)
-            codes[a] ^= 1
-            codes[b] ^= 1
-            for k in range(z):
-                n = _neighbour(xa, ya, za, k, forward, nx, ny, nz, periodic)[0]
-                if n >= 0:
-                    codes[n] -= delta
-                n = _neighbour(xb, yb, zb, k, forward, nx, ny, nz, periodic)[0]
-                if n >= 0:
-                    codes[n] += delta
-            # the bonds of every site whose code changed: a, b and their neighbours (a site
-            # seen twice finds its bonds already up to date)
-            total += _update_bonds(codes, slot_classes, sets, rates, a, xa, ya, za, forward,
-                                   dims, periodic)
-            total += _update_bonds(codes, slot_classes, sets, rates, b, xb, yb, zb, forward,
-                                   dims, periodic)
-            for k in range(z):
-                if k != j:  # b, done
-                    n, x, y, zc = _neighbour(xa, ya, za, k, forward, nx, ny, nz, periodic)
-                    if n >= 0:
-                        total += _update_bonds(codes, slot_classes, sets, rates, n, x, y, zc,
-                                               forward, dims, periodic)
-                if k != j + zf:  # a, done
-                    n, x, y, zc = _neighbour(xb, yb, zb, k, forward, nx, ny, nz, periodic)
-                    if n >= 0:
-                        total += _update_bonds(codes, slot_classes, sets, rates, n, x, y, zc,
-                                               forward, dims, periodic)
-            moves += 1
+        moves += _kawasaki_sweep(codes, slot_classes, words, counts0, counts1, counts2,
+                                 counts3, counts, rates, state, buffer, forward, dims[0],
+                                 dims[1], dims[2], periodic, scale)
         if verify:
             _write_spins(codes, spins)
             fresh = site_codes(spins, forward, dims, periodic)
