@@ -159,26 +159,6 @@ def _count_members(classes, n_moves, n_classes):
 
 
 @jit_inline
-def _insert(sets, move, c):
-    counts0, counts1, counts2, counts3, counts = sets
-    counts0[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] += 1
-    counts1[c, move >> _LEVEL1_BITS] += 1
-    counts2[c, move >> _LEVEL2_BITS] += 1
-    counts3[c, move >> _LEVEL3_BITS] += 1
-    counts[c] += 1
-
-
-@jit_inline
-def _delete(sets, move, c):
-    counts0, counts1, counts2, counts3, counts = sets
-    counts0[move >> _LEVEL1_BITS, c, (move >> _WORD_BITS) & 15] -= 1
-    counts1[c, move >> _LEVEL1_BITS] -= 1
-    counts2[c, move >> _LEVEL2_BITS] -= 1
-    counts3[c, move >> _LEVEL3_BITS] -= 1
-    counts[c] -= 1
-
-
-@jit_inline
 def _count(counts0, counts1, counts2, counts3, counts, move, c, d):
     """Add ``d`` to the counts of class ``c`` that hold ``move``, at every level.
 
@@ -194,17 +174,6 @@ def _count(counts0, counts1, counts2, counts3, counts, move, c, d):
     counts2[cu, m >> np.uint64(_LEVEL2_BITS)] += d
     counts3[cu, m >> np.uint64(_LEVEL3_BITS)] += d
     counts[cu] += d
-
-
-@jit_inline
-def _move(sets, move, old, new):
-    """Count ``move`` in class ``new`` instead of ``old`` (either may be -1: no class); the
-    caller writes the class array."""
-    if old != new:
-        if old >= 0:
-            _delete(sets, move, old)
-        if new >= 0:
-            _insert(sets, move, new)
 
 
 _LOW7 = np.uint64(0x7F7F7F7F7F7F7F7F)

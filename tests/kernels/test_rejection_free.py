@@ -175,7 +175,8 @@ def test_recount_detects_a_corrupted_list():
     assert kernel._differences(good, kernel.glauber_classes(codes, n, 18)) == 0
     wrong = kernel.glauber_classes(codes, n, 18)
     c = int(codes[77])
-    kernel._move(wrong, 77, c, c ^ 1)
+    kernel._count(*wrong, 77, c, -1)  # site 77 counted in the other spin's class
+    kernel._count(*wrong, 77, c ^ 1, 1)
     assert kernel._differences(good, wrong) == 5
     wrong = kernel.glauber_classes(codes, n, 18)
     wrong[2][0, 0] += 1
