@@ -33,6 +33,20 @@ def is_fit_dataset(ds) -> bool:
     return "input_time" in ds.variables and "model" in ds.attrs
 
 
+def _posterior_draws(ds) -> tuple[str, dict]:
+    """(model, parameter name -> draws) of a fit dataset: at most ``_MAX_DRAWS`` draws, evenly
+    thinned, and parameters held fixed in the fit as constant arrays of their value."""
+    model = ds.attrs["model"]
+    draws = ds[f"posterior_{model}"].values
+    names = [str(v) for v in ds[f"parameter_{model}"].values]
+    if draws.shape[0] > _MAX_DRAWS:
+        draws = draws[np.linspace(0, draws.shape[0] - 1, _MAX_DRAWS).astype(int)]
+    values = {name: draws[:, i] for i, name in enumerate(names)}
+    for name, entry in json.loads(ds.attrs["summary"])["parameters"].items():
+        values.setdefault(name, np.full(draws.shape[0], float(entry["median"])))
+    return model, values
+
+
 def fit_band(fit, time=None, *, probability: float = 0.95) -> dict:
     """The fitted law's posterior median and central band of L(t).
 
@@ -49,16 +63,7 @@ def fit_band(fit, time=None, *, probability: float = 0.95) -> dict:
     dict with ``time``, ``median``, ``low``, ``high`` (lattice spacings) and ``model``
     """
     ds = _as_fit_dataset(fit)
-    model = ds.attrs["model"]
-    summary = json.loads(ds.attrs["summary"])
-    draws = ds[f"posterior_{model}"].values
-    names = [str(v) for v in ds[f"parameter_{model}"].values]
-    if draws.shape[0] > _MAX_DRAWS:
-        draws = draws[np.linspace(0, draws.shape[0] - 1, _MAX_DRAWS).astype(int)]
-    values = {name: draws[:, i] for i, name in enumerate(names)}
-    for name, entry in summary["parameters"].items():
-        if name not in values:
-            values[name] = np.full(draws.shape[0], float(entry["median"]))
+    model, values = _posterior_draws(ds)
     if time is None:
         time = np.geomspace(float(ds.attrs["tmin"]), float(ds.attrs["tmax"]), 100)
     t = np.asarray(time, dtype=float)[np.newaxis]
@@ -86,16 +91,7 @@ def model_effective_exponent(fit, time, *, probability: float = 0.95) -> dict:
     -------
     dict with ``time``, ``median``, ``low``, ``high``
     """
-    ds = _as_fit_dataset(fit)
-    model = ds.attrs["model"]
-    draws = ds[f"posterior_{model}"].values
-    names = [str(v) for v in ds[f"parameter_{model}"].values]
-    if draws.shape[0] > _MAX_DRAWS:
-        draws = draws[np.linspace(0, draws.shape[0] - 1, _MAX_DRAWS).astype(int)]
-    summary = json.loads(ds.attrs["summary"])
-    values = {name: draws[:, i] for i, name in enumerate(names)}
-    for name, entry in summary["parameters"].items():
-        values.setdefault(name, np.full(draws.shape[0], float(entry["median"])))
+    model, values = _posterior_draws(_as_fit_dataset(fit))
     t = np.asarray(time, dtype=float)[np.newaxis]
     n = values["n"][:, np.newaxis]
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
