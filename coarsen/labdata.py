@@ -32,6 +32,7 @@ from coarsen.equilibrium import equilibrium_energy
 from coarsen.lattice import LATTICE_KINDS, Lattice
 from coarsen.observables import MeasurementGrid, measure
 from coarsen.series import MeasurementSeries
+from coarsen.spec import evenly_spread
 
 __all__ = ["LabSnapshots", "load_snapshots", "measure_snapshots"]
 
@@ -215,10 +216,7 @@ def _kept_configurations(snapshots: LabSnapshots, inverse, counts, keep):
     mask are stored as 0 (neither phase).
     """
     n_times = len(counts)
-    if keep is None or keep >= n_times:
-        chosen = np.arange(n_times)
-    else:
-        chosen = np.unique(np.round(np.linspace(0, n_times - 1, keep)).astype(int))
+    chosen = np.array(evenly_spread(n_times, n_times if keep is None else keep), dtype=int)
     out = np.zeros((len(chosen), int(counts.max()), *snapshots.spins.shape[1:]), dtype=np.int8)
     for slot, index in enumerate(chosen):
         shots = snapshots.spins[inverse == index]

@@ -82,6 +82,7 @@ __all__ = [
     "SpecError",
     "SpecTypeError",
     "critical_temperature",
+    "evenly_spread",
     "load_spec",
     "parse_spec",
     "spec_from_mapping",
@@ -644,14 +645,24 @@ def _times(value) -> tuple[int, ...]:
     return _round_times(grid.tolist(), key)
 
 
-def _snapshot_times(times: tuple[int, ...], snapshots: int) -> tuple[int, ...]:
-    n, last = snapshots, len(times) - 1
-    if n == 0:
+def evenly_spread(items: int, count: int) -> tuple[int, ...]:
+    """Indices of ``count`` of ``items`` things spread evenly, the last included.
+
+    The index nearest ``i (items - 1) / (count - 1)`` for i = 0 .. count - 1, in integers,
+    strictly increasing (``count`` is capped at ``items``); one index is the last. This is
+    how a run chooses the measurement times that keep a snapshot, and how lab datasets and
+    figures thin theirs.
+    """
+    n, last = min(int(count), int(items)), int(items) - 1
+    if n <= 0:
         return ()
     if n == 1:
-        return (times[-1],)
-    # the index nearest i * last / (n - 1), in integers; strictly increasing as n <= last + 1
-    return tuple(times[(i * last + (n - 1) // 2) // (n - 1)] for i in range(n))
+        return (last,)
+    return tuple((i * last + (n - 1) // 2) // (n - 1) for i in range(n))
+
+
+def _snapshot_times(times: tuple[int, ...], snapshots: int) -> tuple[int, ...]:
+    return tuple(times[i] for i in evenly_spread(len(times), snapshots))
 
 
 def _build(mapping: dict, source, text: str) -> Spec:

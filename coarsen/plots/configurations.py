@@ -6,6 +6,7 @@ import numpy as np
 
 from coarsen.plots.style import (COLUMN_WIDTH, DOUBLE_WIDTH, INK, LINE_COLOURS, MARKERS,
                                  PHASE_COLOURS, new_figure, style)
+from coarsen.spec import evenly_spread
 
 __all__ = ["plot_seeded", "plot_snapshots", "staggered"]
 
@@ -73,8 +74,7 @@ def plot_snapshots(run, *, replicas: int = 2, max_columns: int = 5, title=None):
             np.where(np.arange(values.shape[-1]) % 2 == 0, values, -values)
     times = run["snapshot_time"].values
     if values.shape[1] > max_columns:  # a lab dataset keeps every time: draw a few
-        pick = np.unique(np.round(np.linspace(0, values.shape[1] - 1,
-                                              max_columns)).astype(int))
+        pick = np.array(evenly_spread(values.shape[1], max_columns), dtype=int)
         values, times = values[:, pick], times[pick]
     rows, columns = values.shape[0], values.shape[1]
     # -1, 0 (a site that was not measured, in lab data) and +1
