@@ -58,6 +58,10 @@ def _thread_count(text: str) -> int:
     return _number(text, "a whole number", integer=True, minimum=1)
 
 
+def _whole_number(text: str) -> int:
+    return _number(text, "a whole number", integer=True, minimum=0)
+
+
 def _add_bench(subcommands) -> None:
     bench = subcommands.add_parser(
         "bench",
@@ -140,7 +144,7 @@ def _add_measure(subcommands) -> None:
                          help="lattice kind (default: chain, square or cubic by dimension)")
     measure.add_argument("--lengths-csv", default=None, metavar="LENGTHS.csv",
                          help="also write the shot-mean lengths (corr_half) as CSV")
-    measure.add_argument("--snapshots", type=int, default=None, metavar="N",
+    measure.add_argument("--snapshots", type=_whole_number, default=None, metavar="N",
                          dest="keep_snapshots",
                          help="keep the configurations of at most N times, evenly chosen, in "
                               "the dataset's snapshot variable (0: none; default: all)")
@@ -196,8 +200,6 @@ def _run_measure(args) -> int:
     output = os.path.abspath(args.output)
     if not os.path.isdir(os.path.dirname(output)):
         raise ValueError(f"output {args.output!r}: the directory does not exist")
-    if args.keep_snapshots is not None and args.keep_snapshots < 0:
-        raise ValueError(f"--snapshots: {args.keep_snapshots} must be a whole number >= 0")
     snapshots = load_snapshots(args.snapshots, boundary=args.boundary, times=args.times,
                                kind=args.lattice)
     ds = measure_snapshots(snapshots, order=args.order, keep_snapshots=args.keep_snapshots)
