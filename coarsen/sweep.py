@@ -35,8 +35,8 @@ from typing import Callable
 from coarsen.sweep_combine import MANIFEST, MANIFEST_FORMAT, PARTS, open_sweep, read_manifest
 from coarsen.sweep_file import Sweep, SweepError
 
-__all__ = ["SweepFailed", "SweepReport", "default_workers", "open_sweep", "read_manifest",
-           "run_part", "run_sweep"]
+__all__ = ["QUIET_CLUSTER", "SweepFailed", "SweepReport", "default_workers", "open_sweep",
+           "read_manifest", "run_part", "run_sweep"]
 
 COMBINED = "combined.nc"
 DEFAULT_RETRIES = 2
@@ -209,6 +209,20 @@ def _pending(sweep: Sweep, manifest: dict, directory: Path, notify) -> list:
 # --------------------------------------------------------------------------------------------
 # the cluster
 # --------------------------------------------------------------------------------------------
+#: Dask settings of the embedded LocalCluster. Dask's defaults wake every process many times a
+#: second: a 20 ms tick, a 100 ms memory poll, a 500 ms system monitor and, in each worker, a
+#: 10 ms stack sampler. On a 2-core machine those take the cores the engine threads need: with
+#: them, sweep tasks of 256² quenches were off the CPU for 8% of their wall time, and a 6-task
+#: sweep finished 10-16% later (three interleaved pairs; DEVELOPERS.md, "Sweep speed"). A
+#: coarsen task is one long call into a compiled kernel, so the sampled profile says little.
+QUIET_CLUSTER = {
+    "distributed.admin.tick.interval": "1s",
+    "distributed.admin.system-monitor.interval": "5s",
+    "distributed.worker.memory.monitor-interval": "1s",
+    "distributed.worker.profile.enabled": False,
+}
+
+
 def default_workers() -> int:
     """One worker per core this process may use."""
     try:
@@ -236,9 +250,12 @@ def _client(scheduler, workers, dashboard: bool):
         with client:
             yield client
         return
+    import dask
+
     address = "127.0.0.1:0" if dashboard else None
-    with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                      dashboard_address=address, silence_logs=logging.ERROR) as cluster, \
+    with dask.config.set(QUIET_CLUSTER), \
+            LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
+                         dashboard_address=address, silence_logs=logging.ERROR) as cluster, \
             Client(cluster) as client:
         yield client
 

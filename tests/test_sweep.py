@@ -125,6 +125,23 @@ def test_local_cluster_sweep_combines_the_grid(local_sweep):
     xr.testing.assert_identical(combined, ds)
 
 
+def _timers(dask_worker):
+    return {name: timer.callback_time for name, timer in dask_worker.periodic_callbacks.items()}
+
+
+def test_embedded_cluster_workers_run_with_the_quiet_settings():
+    # Dask's defaults: a 20 ms tick, a 100 ms memory poll, a 500 ms system monitor and a 10 ms
+    # stack sampler in every worker; the embedded cluster must hand its settings to the
+    # worker processes (the nanny copies the configuration at start)
+    from coarsen.sweep import _client
+
+    with _client(None, 1, dashboard=False) as client:
+        (timers,) = client.run(_timers).values()
+    assert "profile" not in timers
+    assert timers["tick"] == 1000 and timers["memory_monitor"] == 1000
+    assert timers["monitor"] == 5000
+
+
 def test_lazy_open_reads_through_dask(local_sweep):
     eager = open_sweep(local_sweep, lazy=False)
     lazy = open_sweep(local_sweep, lazy=True)
