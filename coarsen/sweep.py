@@ -10,8 +10,10 @@ to ``DIR/parts/point-PPPP-batch-BBB.nc``: exactly what ``coarsen run`` writes fo
 text. The workers write the parts, so on a cluster ``DIR`` must be on a filesystem the
 workers and the client share.
 
-The manifest ``DIR/manifest.json`` (rewritten atomically by the client after every task)
-holds the grid, the tasks and which parts are finished or failed. ``resume=True`` skips the
+The manifest ``DIR/manifest.json`` holds the grid, the tasks and which parts are finished or
+failed. The client rewrites it atomically as results come in: at once for the first, then at
+most once a second, and for a manifest that is slow to write at most a tenth of the time (a
+sweep of thousands of tasks would otherwise spend the client's CPU rewriting it). ``resume=True`` skips the
 finished parts (a part on disk that the manifest does not list yet, because the client died
 between the worker's write and its own, is checked against its spec text and adopted), so a
 killed sweep loses at most the tasks in flight and no part is ever run twice to completion
@@ -40,6 +42,8 @@ __all__ = ["QUIET_CLUSTER", "SweepFailed", "SweepReport", "default_workers", "op
 
 COMBINED = "combined.nc"
 DEFAULT_RETRIES = 2
+#: Seconds between two writes of the manifest while tasks finish (at least).
+MANIFEST_INTERVAL = 1.0
 
 
 class SweepFailed(RuntimeError):
@@ -139,6 +143,35 @@ def _write_manifest(manifest: dict, directory: Path) -> None:
     from coarsen.dataset import write_text_atomically
 
     write_text_atomically(json.dumps(manifest, indent=1) + "\n", directory / MANIFEST)
+
+
+class _ManifestRecorder:
+    """Writes the manifest after task results, throttled.
+
+    The first result is written at once; later ones at most every ``interval`` seconds, and
+    never more than a tenth of the time (the pause after a write is at least nine times the
+    write). A result not yet on disk when the client is killed is not lost: its part is on
+    disk, and resuming adopts it.
+    """
+
+    def __init__(self, manifest: dict, directory: Path, interval: float = MANIFEST_INTERVAL):
+        self.manifest, self.directory, self.interval = manifest, directory, interval
+        self.unwritten = False
+        self.next_write = 0.0
+
+    def changed(self) -> None:
+        self.unwritten = True
+        if time.monotonic() >= self.next_write:
+            self.write()
+
+    def write(self) -> None:
+        if not self.unwritten:
+            return
+        start = time.monotonic()
+        _write_manifest(self.manifest, self.directory)
+        end = time.monotonic()
+        self.unwritten = False
+        self.next_write = end + max(self.interval, 9 * (end - start))
 
 
 def _prepare(sweep: Sweep, directory: Path, resume: bool, notify) -> dict:
@@ -307,7 +340,8 @@ def run_sweep(sweep: Sweep, directory, *, client=None, scheduler: str | None = N
     notify : callable, optional
         Receives one-line messages (the dashboard address, resuming, adopted parts).
     after_task : callable, optional
-        Called with the part name after each finished task is recorded.
+        Called with the part name after each finished task is recorded (in the manifest the
+        client holds; the file follows within about a second).
 
     Returns
     -------
@@ -388,6 +422,7 @@ def _run_tasks(client, pending, manifest, directory: Path, total: int, retries: 
         futures[future] = task
     bar = progress_bar(progress, total=total, initial=total - len(pending),
                        description="sweep", unit="task")
+    recorder = _ManifestRecorder(manifest, directory)
     try:
         with bar:
             for future in as_completed(futures):
@@ -408,7 +443,7 @@ def _run_tasks(client, pending, manifest, directory: Path, total: int, retries: 
                     text = (" ".join(f"{type(error).__name__}: {error}".split())
                             if error is not None else future.status)
                     manifest["failed"][task.part] = text
-                _write_manifest(manifest, directory)
+                recorder.changed()
                 bar.update(1)
                 if after_task is not None and task.part in manifest["finished"]:
                     after_task(task.part)
@@ -416,4 +451,7 @@ def _run_tasks(client, pending, manifest, directory: Path, total: int, retries: 
     except BaseException:
         for future in futures:
             future.cancel()
+        with contextlib.suppress(OSError):  # keep what finished; the error is the one raised
+            recorder.write()
         raise
+    recorder.write()

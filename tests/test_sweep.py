@@ -142,6 +142,30 @@ def test_embedded_cluster_workers_run_with_the_quiet_settings():
     assert timers["monitor"] == 5000
 
 
+def test_manifest_writes_are_throttled_and_flushed(tmp_path):
+    # the client records results in its manifest at once, but writes the file only for the
+    # first and then at most once per interval; write() flushes what is left
+    from coarsen.sweep import _ManifestRecorder
+
+    manifest = {"finished": {}}
+    recorder = _ManifestRecorder(manifest, tmp_path, interval=3600)
+
+    def on_disk():
+        return json.loads((tmp_path / "manifest.json").read_text())["finished"]
+
+    manifest["finished"]["a"] = 1
+    recorder.changed()
+    assert on_disk() == {"a": 1}
+    manifest["finished"]["b"] = 2
+    recorder.changed()
+    assert on_disk() == {"a": 1}
+    recorder.write()
+    assert on_disk() == {"a": 1, "b": 2}
+    (tmp_path / "manifest.json").unlink()
+    recorder.write()  # nothing new: no write
+    assert not (tmp_path / "manifest.json").exists()
+
+
 def test_lazy_open_reads_through_dask(local_sweep):
     eager = open_sweep(local_sweep, lazy=False)
     lazy = open_sweep(local_sweep, lazy=True)
