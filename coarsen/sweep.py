@@ -13,13 +13,14 @@ workers and the client share.
 The manifest ``DIR/manifest.json`` holds the grid, the tasks and which parts are finished or
 failed. The client rewrites it atomically as results come in: at once for the first, then at
 most once a second, and for a manifest that is slow to write at most a tenth of the time (a
-sweep of thousands of tasks would otherwise spend the client's CPU rewriting it). ``resume=True`` skips the
-finished parts (a part on disk that the manifest does not list yet, because the client died
-between the worker's write and its own, is checked against its spec text and adopted), so a
-killed sweep loses at most the tasks in flight and no part is ever run twice to completion
-into the sweep. A failing task is retried ``retries`` times by Dask, then reported; the other
-tasks go on. :func:`coarsen.sweep_combine.open_sweep` (``coarsen.open_sweep``) gathers the
-parts into one dataset; ``run_sweep`` writes it to ``DIR/combined.nc``.
+sweep of thousands of tasks would otherwise spend the client's CPU rewriting it).
+``resume=True`` skips the finished parts (a part on disk that the manifest does not list yet,
+because the client died before writing it down, is checked against its spec text and
+adopted), so a killed sweep loses at most the tasks in flight and no part is ever run twice
+to completion into the sweep. A failing task is retried ``retries`` times by Dask, then
+reported; the other tasks go on. :func:`coarsen.sweep_combine.open_sweep`
+(``coarsen.open_sweep``) gathers the parts into one dataset; ``run_sweep`` writes it to
+``DIR/combined.nc``.
 """
 
 from __future__ import annotations
@@ -341,7 +342,7 @@ def run_sweep(sweep: Sweep, directory, *, client=None, scheduler: str | None = N
         Receives one-line messages (the dashboard address, resuming, adopted parts).
     after_task : callable, optional
         Called with the part name after each finished task is recorded (in the manifest the
-        client holds; the file follows within about a second).
+        client holds; the file follows within a second or so).
 
     Returns
     -------
